@@ -1,0 +1,177 @@
+//! The built-in demo study, read from `demo-studies/tidewater.toml` (embedded at build time):
+//! an invented scenario with three synthetic subjects of normal, mildly reduced and
+//! severely reduced EF, each reconstructed fully sampled and zero-filled at R = 2 and 4.
+
+use serde::Deserialize;
+
+use crate::phantom::{Phantom, PhantomSpec};
+use crate::pipeline::{self, RunRequest};
+use crate::recon;
+use crate::results::{InputHash, ResultsFile, RunRow};
+use crate::sampling::{Pattern, SamplingSpec};
+use crate::segment::SegmentParams;
+
+/// The demo study description, embedded in the binary.
+pub const DEMO_TOML: &str = include_str!("../demo-studies/tidewater.toml");
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct DemoFile {
+    study: String,
+    acquisition: Acquisition,
+    comparison: Comparison,
+    subject: Vec<SubjectEntry>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct Acquisition {
+    slices: usize,
+    slice_thickness_mm: f64,
+    slice_gap_mm: f64,
+    pixel_mm: f64,
+    rows: usize,
+    cols: usize,
+    frames: usize,
+    coils: usize,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct Comparison {
+    method: String,
+    pattern: String,
+    accelerations: Vec<f64>,
+    acs_lines: usize,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SubjectEntry {
+    code: String,
+    description: String,
+    edv_ml: f64,
+    ef_pct: f64,
+    heart_rate_bpm: f64,
+    snr: f64,
+}
+
+fn demo_file() -> DemoFile {
+    toml::from_str(DEMO_TOML).expect("the embedded demo study is valid (checked by tests)")
+}
+
+/// Study code of the demo.
+pub fn study() -> String {
+    demo_file().study
+}
+
+/// One synthetic demo subject.
+#[derive(Debug, Clone)]
+pub struct DemoSubject {
+    /// Subject code.
+    pub code: String,
+    /// What the subject represents.
+    pub description: String,
+    /// Phantom parameters.
+    pub spec: PhantomSpec,
+}
+
+/// The demo subjects; `rng_seed` sets their noise (each subject its own stream).
+pub fn subjects(rng_seed: u64) -> Vec<DemoSubject> {
+    let d = demo_file();
+    let a = &d.acquisition;
+    d.subject
+        .iter()
+        .enumerate()
+        .map(|(k, s)| DemoSubject {
+            code: s.code.clone(),
+            description: s.description.clone(),
+            spec: PhantomSpec {
+                edv_ml: s.edv_ml,
+                ef_pct: s.ef_pct,
+                heart_rate_bpm: s.heart_rate_bpm,
+                slices: a.slices,
+                slice_thickness_mm: a.slice_thickness_mm,
+                slice_gap_mm: a.slice_gap_mm,
+                pixel_mm: a.pixel_mm,
+                rows: a.rows,
+                cols: a.cols,
+                frames: a.frames,
+                coils: a.coils,
+                snr: s.snr,
+                rng_seed: rng_seed.wrapping_mul(1000).wrapping_add(k as u64 + 1),
+            },
+        })
+        .collect()
+}
+
+/// The runs of the demo: the fully sampled reference, then the compared method at each R.
+pub fn runs() -> Vec<RunRequest> {
+    let c = demo_file().comparison;
+    let pattern = match c.pattern.as_str() {
+        "equispaced" => Pattern::Equispaced,
+        other => panic!("embedded demo names pattern `{other}`, which the demo does not run"),
+    };
+    let method = recon::by_id(&c.method).expect("embedded demo names a registered method");
+    let mut v = vec![RunRequest {
+        method: recon::by_id("reference").expect("registered"),
+        sampling: SamplingSpec::full(),
+    }];
+    for r in c.accelerations {
+        let sampling = SamplingSpec::new(pattern, r, c.acs_lines).expect("valid demo sampling");
+        v.push(RunRequest { method, sampling });
+    }
+    v
+}
+
+/// Runs the whole chain on one synthetic subject and returns its result rows.
+///
+/// # Errors
+/// An invalid phantom specification or sampling request.
+pub fn run_subject(
+    code: &str,
+    spec: &PhantomSpec,
+    runs: &[RunRequest],
+    params: &SegmentParams,
+) -> Result<Vec<RunRow>, anyhow::Error> {
+    let ph = Phantom::new(spec.clone())?;
+    let seeds = [pipeline::phantom_seed(&ph)];
+    let geom = ph.geometry();
+    let truth = pipeline::phantom_truth(&ph);
+    let recs = pipeline::reconstruct_phantom(&ph, runs)?;
+    Ok(recs
+        .into_iter()
+        .map(|rec| {
+            let outcome = rec.stack.and_then(|stack| {
+                pipeline::measure_series(stack.view(), &geom, &seeds, params)
+                    .map_err(|e| e.to_string())
+            });
+            pipeline::result_row(code, &rec.plan, outcome, params, Some(truth.clone()))
+        })
+        .collect())
+}
+
+/// Runs the demo study; `progress` is told each subject as it starts.
+///
+/// # Errors
+/// As [`run_subject`].
+pub fn run(
+    rng_seed: u64,
+    progress: &dyn Fn(usize, usize, &str),
+) -> Result<ResultsFile, anyhow::Error> {
+    let subjects = subjects(rng_seed);
+    let runs = runs();
+    let params = SegmentParams::default();
+    let mut rows = Vec::new();
+    let mut inputs = Vec::new();
+    for (i, s) in subjects.iter().enumerate() {
+        progress(i, subjects.len(), &s.code);
+        inputs.push(InputHash {
+            label: format!("{} (synthetic phantom parameters)", s.code),
+            sha256: pipeline::sha256_of(&s.spec),
+        });
+        rows.extend(run_subject(&s.code, &s.spec, &runs, &params)?);
+    }
+    progress(subjects.len(), subjects.len(), "done");
+    Ok(ResultsFile::new(&study(), inputs, rows))
+}

@@ -1,0 +1,152 @@
+//! Tissue layout of one short-axis plane and its partial-volume rendering.
+//!
+//! Intensities imitate balanced SSFP cine contrast: blood bright, myocardium dark, fat
+//! bright, lung nearly black. Each pixel is the mean over a regular grid of sub-samples
+//! in-plane and across the slice thickness (partial-volume rendering by supersampling).
+
+use super::anatomy::LvShape;
+
+/// Signal of each tissue (arbitrary units; LV blood = 1).
+pub mod signal {
+    /// LV blood.
+    pub const LV_BLOOD: f32 = 1.0;
+    /// RV blood.
+    pub const RV_BLOOD: f32 = 0.95;
+    /// Myocardium (LV, RV free wall, papillary muscles).
+    pub const MYOCARDIUM: f32 = 0.28;
+    /// Chest-wall muscle and mediastinum.
+    pub const TISSUE: f32 = 0.34;
+    /// Subcutaneous fat.
+    pub const FAT: f32 = 0.85;
+    /// Lung.
+    pub const LUNG: f32 = 0.04;
+    /// Air outside the body.
+    pub const AIR: f32 = 0.0;
+}
+
+/// In-plane sub-samples per pixel side.
+pub const SUBSAMPLES_INPLANE: usize = 3;
+/// Sub-samples across the slice thickness.
+pub const SUBSAMPLES_THROUGH: usize = 5;
+
+/// Everything needed to classify a point `(x, y, z)` in mm at one instant.
+#[derive(Debug, Clone)]
+pub struct Scene {
+    /// LV shape at this instant.
+    pub lv: LvShape,
+    /// LV long axis position in-plane `(x, y)` mm.
+    pub lv_centre: (f64, f64),
+    /// RV semi-axes `(x, y)` in mm at the widest section, at this instant.
+    pub rv_axes: (f64, f64),
+    /// RV centre offset from the LV centre `(dx, dy)` mm.
+    pub rv_offset: (f64, f64),
+    /// Body semi-axes `(x, y)` mm.
+    pub body_axes: (f64, f64),
+    /// Subcutaneous fat thickness (mm).
+    pub fat_mm: f64,
+    /// Lung ellipses: centre `(x, y)` and semi-axes `(x, y)` in mm.
+    pub lungs: [((f64, f64), (f64, f64)); 2],
+}
+
+/// Which tissue lies at a point, and whether it counts as LV blood pool (papillary
+/// muscles are counted in the blood pool).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Sample {
+    /// Signal at the point.
+    pub signal: f32,
+    /// Inside the LV cavity (blood-pool convention: papillary muscles included).
+    pub lv_pool: bool,
+    /// Inside a papillary muscle.
+    pub papillary: bool,
+}
+
+fn inside_ellipse(dx: f64, dy: f64, ax: f64, ay: f64) -> bool {
+    (dx / ax).powi(2) + (dy / ay).powi(2) <= 1.0
+}
+
+impl Scene {
+    /// Classifies the point `(x, y, z)` (mm; x along columns, y along rows, z along the normal).
+    pub fn sample(&self, x: f64, y: f64, z: f64) -> Sample {
+        let (cx, cy) = self.lv_centre;
+        let (dx, dy) = (x - cx, y - cy);
+        let lv = &self.lv;
+        if let Some(s) = lv.cavity_scale(z) {
+            if inside_ellipse(dx, dy, lv.a * s, lv.b * s) {
+                let pap = self.in_papillary(dx, dy, z, s);
+                let signal = if pap {
+                    signal::MYOCARDIUM
+                } else {
+                    signal::LV_BLOOD
+                };
+                return Sample {
+                    signal,
+                    lv_pool: true,
+                    papillary: pap,
+                };
+            }
+        }
+        let epi = lv.epi_scale(z);
+        if let Some(s) = epi {
+            let (ea, eb) = ((lv.a + lv.wall) * s, (lv.b + lv.wall) * s);
+            if inside_ellipse(dx, dy, ea, eb) {
+                return tissue(signal::MYOCARDIUM);
+            }
+        }
+        // The RV follows the epicardial profile in z, from 12 mm above the apex to the base.
+        if z > lv.z_apex() + 12.0 && z <= lv.z_base {
+            let s = epi.unwrap_or(0.0);
+            let (rx, ry) = (self.rv_axes.0 * s, self.rv_axes.1 * s);
+            let (rdx, rdy) = (dx - self.rv_offset.0, dy - self.rv_offset.1);
+            if rx > 0.0 && inside_ellipse(rdx, rdy, rx, ry) {
+                return tissue(signal::RV_BLOOD);
+            }
+            if rx > 0.0 && inside_ellipse(rdx, rdy, rx + 3.0, ry + 3.0) {
+                return tissue(signal::MYOCARDIUM);
+            }
+        }
+        let (bx, by) = self.body_axes;
+        if !inside_ellipse(x, y, bx, by) {
+            return tissue(signal::AIR);
+        }
+        if !inside_ellipse(x, y, bx - self.fat_mm, by - self.fat_mm) {
+            return tissue(signal::FAT);
+        }
+        for ((lx, ly), (ax, ay)) in self.lungs {
+            if inside_ellipse(x - lx, y - ly, ax, ay) {
+                return tissue(signal::LUNG);
+            }
+        }
+        tissue(signal::TISSUE)
+    }
+
+    /// Two papillary muscles: cylinders of radius `0.14·a·s` at 55 % of the local cavity
+    /// radius, anterolateral and posteromedial, in the middle part of the long axis.
+    fn in_papillary(&self, dx: f64, dy: f64, z: f64, s: f64) -> bool {
+        let lv = &self.lv;
+        let length = lv.z_base - lv.z_apex();
+        let rel = (z - lv.z_apex()) / length;
+        if !(0.2..=0.7).contains(&rel) {
+            return false;
+        }
+        let r = 0.14 * lv.a * s;
+        [(0.6f64, 0.55f64), (-0.9f64, 0.55f64)]
+            .iter()
+            .any(|&(ang, frac)| {
+                let (px, py) = (frac * lv.a * s * ang.cos(), frac * lv.b * s * ang.sin());
+                (dx - px).powi(2) + (dy - py).powi(2) <= r * r
+            })
+    }
+}
+
+fn tissue(signal: f32) -> Sample {
+    Sample {
+        signal,
+        lv_pool: false,
+        papillary: false,
+    }
+}
+
+/// Regular sub-sample offsets in `[-0.5, 0.5)` (cell midpoints), `n` per unit.
+pub fn offsets(n: usize) -> Vec<f64> {
+    (0..n).map(|i| (i as f64 + 0.5) / n as f64 - 0.5).collect()
+}

@@ -1,0 +1,178 @@
+//! The chain for one subject: k-space → undersample → reconstruct → segment → measure →
+//! result row. Stages are called in this order only.
+
+use ndarray::{s, Array4, ArrayView4};
+use sha2::{Digest, Sha256};
+
+use crate::fft::CenteredFft2;
+use crate::geometry::Geometry;
+use crate::measure::{self, MeasureError, PhaseChoice, Volumetry};
+use crate::phantom::Phantom;
+use crate::recon::{ReconInput, ReconPlan, Reconstructor};
+use crate::results::{Numbers, RunRow, RunStatus, Truth};
+use crate::sampling::{SamplingError, SamplingSpec};
+use crate::segment::{self, Seed, SegmentError, SegmentParams, Segmentation};
+
+/// One reconstruction to run on every slice of a subject.
+#[derive(Clone, Copy)]
+pub struct RunRequest {
+    /// Method.
+    pub method: &'static dyn Reconstructor,
+    /// Sampling.
+    pub sampling: SamplingSpec,
+}
+
+/// A reconstructed stack or why it failed, with its plan.
+pub struct Reconstructed {
+    /// What was run.
+    pub plan: ReconPlan,
+    /// `[slice, frame, row, col]` magnitude, or the error text.
+    pub stack: Result<Array4<f32>, String>,
+}
+
+/// Failure of segmentation or measurement of one series.
+#[derive(Debug, thiserror::Error)]
+pub enum SeriesError {
+    /// Segmentation failed.
+    #[error(transparent)]
+    Segment(#[from] SegmentError),
+    /// Measurement failed.
+    #[error(transparent)]
+    Measure(#[from] MeasureError),
+}
+
+/// Renders and acquires the phantom slice by slice and runs every request on each slice,
+/// so only one slice of k-space is in memory at a time. A method failing on a slice fails
+/// that run only.
+///
+/// # Errors
+/// A sampling request that does not fit the phantom's matrix.
+pub fn reconstruct_phantom(
+    ph: &Phantom,
+    runs: &[RunRequest],
+) -> Result<Vec<Reconstructed>, SamplingError> {
+    let spec = ph.spec();
+    let (ns, nf, nr, nc) = (spec.slices, spec.frames, spec.rows, spec.cols);
+    let fft = CenteredFft2::new(nr, nc);
+    let masks = runs
+        .iter()
+        .map(|r| r.sampling.mask(nf, nr))
+        .collect::<Result<Vec<_>, _>>()?;
+    let mut out: Vec<Reconstructed> = runs
+        .iter()
+        .zip(&masks)
+        .map(|(r, mask)| Reconstructed {
+            plan: ReconPlan {
+                method: r.method.id().into(),
+                pattern: r.sampling.pattern.id().into(),
+                accel_nominal: r.sampling.accel,
+                accel_effective: mask.accel_effective(),
+            },
+            stack: Ok(Array4::zeros((ns, nf, nr, nc))),
+        })
+        .collect();
+    for k in 0..ns {
+        let (image, _) = ph.render_slice(k);
+        let full = ph.slice_kspace(k, &image);
+        for ((req, mask), rec) in runs.iter().zip(&masks).zip(out.iter_mut()) {
+            let Ok(stack) = rec.stack.as_mut() else {
+                continue;
+            };
+            let mut kspace = full.clone();
+            mask.apply(kspace.view_mut());
+            let input = ReconInput {
+                kspace: kspace.view(),
+                mask,
+                fft: &fft,
+            };
+            match req.method.reconstruct(&input) {
+                Ok(o) => stack.slice_mut(s![k, .., .., ..]).assign(&o.images),
+                Err(e) => rec.stack = Err(format!("slice {k}: {e}")),
+            }
+        }
+    }
+    Ok(out)
+}
+
+/// Segments and measures one image series with the given seeds.
+///
+/// # Errors
+/// [`SeriesError`] naming the seed or the place at fault.
+pub fn measure_series(
+    images: ArrayView4<f32>,
+    geom: &Geometry,
+    seeds: &[Seed],
+    params: &SegmentParams,
+) -> Result<(Segmentation, Volumetry), SeriesError> {
+    let seg = segment::segment(images, seeds, params)?;
+    let vol = measure::measure(seg.masks.view(), geom, PhaseChoice::default())?;
+    Ok((seg, vol))
+}
+
+/// The analytic truth of a phantom with the result-row keys.
+///
+/// # Panics
+/// Never for a valid phantom (its true volumes are positive).
+pub fn phantom_truth(ph: &Phantom) -> Truth {
+    let t = ph.truth();
+    let geom = ph.geometry();
+    let v = measure::volumetry_from_areas(t.slice_areas_mm2.clone(), &geom, PhaseChoice::default())
+        .expect("phantom volumes are positive");
+    Truth {
+        numbers: Numbers::from(&v),
+        slice_areas_mm2: t.slice_areas_mm2,
+        continuous_volume_curve_ml: t.continuous_volume_curve_ml,
+    }
+}
+
+/// A result row from a plan and the outcome of its series.
+pub fn result_row(
+    subject: &str,
+    plan: &ReconPlan,
+    outcome: Result<(Segmentation, Volumetry), String>,
+    params: &SegmentParams,
+    truth: Option<Truth>,
+) -> RunRow {
+    let (status, numbers, areas, messages) = match outcome {
+        Ok((seg, vol)) => (
+            RunStatus::Ok,
+            Some(Numbers::from(&vol)),
+            Some(vol.slice_areas_mm2),
+            seg.notes,
+        ),
+        Err(e) => (RunStatus::Failed, None, None, vec![e]),
+    };
+    RunRow {
+        subject: subject.into(),
+        method: plan.method.clone(),
+        pattern: plan.pattern.clone(),
+        accel_nominal: plan.accel_nominal,
+        accel_effective: plan.accel_effective,
+        status,
+        numbers,
+        blood_pool_convention: params.convention.describe().into(),
+        messages,
+        slice_areas_mm2: areas,
+        truth,
+    }
+}
+
+/// SHA-256 of a serialisable description (provenance of generated inputs).
+pub fn sha256_of<T: serde::Serialize>(value: &T) -> String {
+    let bytes = serde_json::to_vec(value).expect("serialisable");
+    Sha256::digest(&bytes)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect()
+}
+
+/// The single mid-ventricular seed of a phantom, at frame 0 (end-diastole).
+pub fn phantom_seed(ph: &Phantom) -> Seed {
+    let (slice, row, col) = ph.mid_ventricular_pixel();
+    Seed {
+        slice,
+        frame: 0,
+        row,
+        col,
+    }
+}

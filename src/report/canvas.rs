@@ -1,0 +1,142 @@
+//! A small drawing surface over printpdf operations, measured in millimetres from the
+//! top-left corner of an A4 page (PDF itself counts from the bottom-left).
+
+use printpdf::{
+    BuiltinFont, Color, Greyscale, Line, LinePoint, Mm, Op, PaintMode, PdfFontHandle, Point, Pt,
+    Rect, Rgb, TextItem,
+};
+
+/// A4 width in mm.
+pub const PAGE_W: f32 = 210.0;
+/// A4 height in mm.
+pub const PAGE_H: f32 = 297.0;
+
+/// Font weight.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Weight {
+    /// Regular.
+    Regular,
+    /// Bold.
+    Bold,
+}
+
+/// Operations of one page.
+#[derive(Default)]
+pub struct Page {
+    /// The PDF operations drawn so far.
+    pub ops: Vec<Op>,
+}
+
+fn pt(mm: f32) -> Pt {
+    Mm(mm).into_pt()
+}
+
+fn point(x_mm: f32, y_top_mm: f32) -> Point {
+    Point::new(Mm(x_mm), Mm(PAGE_H - y_top_mm))
+}
+
+/// An RGB colour from 0–1 components.
+pub fn rgb(r: f32, g: f32, b: f32) -> Color {
+    Color::Rgb(Rgb {
+        r,
+        g,
+        b,
+        icc_profile: None,
+    })
+}
+
+/// A grey level from 0 (black) to 1 (white).
+pub fn grey(v: f32) -> Color {
+    Color::Greyscale(Greyscale {
+        percent: v,
+        icc_profile: None,
+    })
+}
+
+impl Page {
+    /// Text with its baseline at `y_mm` from the top.
+    pub fn text(&mut self, x_mm: f32, y_mm: f32, size_pt: f32, weight: Weight, text: &str) {
+        let font = match weight {
+            Weight::Regular => BuiltinFont::Helvetica,
+            Weight::Bold => BuiltinFont::HelveticaBold,
+        };
+        self.ops.extend([
+            Op::StartTextSection,
+            Op::SetFillColor { col: grey(0.0) },
+            Op::SetTextCursor {
+                pos: point(x_mm, y_mm),
+            },
+            Op::SetFont {
+                font: PdfFontHandle::Builtin(font),
+                size: Pt(size_pt),
+            },
+            Op::ShowText {
+                items: vec![TextItem::Text(text.to_string())],
+            },
+            Op::EndTextSection,
+        ]);
+    }
+
+    /// Text right-aligned at `x_right_mm` (width estimated from Helvetica's average advance).
+    pub fn text_right(
+        &mut self,
+        x_right_mm: f32,
+        y_mm: f32,
+        size_pt: f32,
+        weight: Weight,
+        text: &str,
+    ) {
+        let w = text_width_mm(text, size_pt);
+        self.text(x_right_mm - w, y_mm, size_pt, weight, text);
+    }
+
+    /// A filled rectangle, top-left corner at `(x, y)`.
+    pub fn fill_rect(&mut self, x_mm: f32, y_mm: f32, w_mm: f32, h_mm: f32, col: Color) {
+        self.ops.push(Op::SetFillColor { col });
+        self.ops.push(Op::DrawRectangle {
+            rectangle: Rect {
+                x: pt(x_mm),
+                y: pt(PAGE_H - y_mm - h_mm),
+                width: pt(w_mm),
+                height: pt(h_mm),
+                mode: Some(PaintMode::Fill),
+                winding_order: None,
+            },
+        });
+    }
+
+    /// A straight line.
+    pub fn line(&mut self, from: (f32, f32), to: (f32, f32), width_pt: f32, col: Color) {
+        self.ops.push(Op::SetOutlineColor { col });
+        self.ops.push(Op::SetOutlineThickness { pt: Pt(width_pt) });
+        self.ops.push(Op::DrawLine {
+            line: Line {
+                points: vec![
+                    LinePoint {
+                        p: point(from.0, from.1),
+                        bezier: false,
+                    },
+                    LinePoint {
+                        p: point(to.0, to.1),
+                        bezier: false,
+                    },
+                ],
+                is_closed: false,
+            },
+        });
+    }
+}
+
+/// Approximate width of Helvetica text: digits and most letters advance about 0.55 em.
+pub fn text_width_mm(text: &str, size_pt: f32) -> f32 {
+    let em_mm = size_pt * 25.4 / 72.0;
+    text.chars()
+        .map(|c| match c {
+            'i' | 'l' | 'j' | '.' | ',' | ':' | ';' | '|' | '\'' | ' ' => 0.28,
+            'm' | 'w' | 'M' | 'W' => 0.85,
+            c if c.is_uppercase() => 0.68,
+            _ => 0.55,
+        })
+        .sum::<f32>()
+        * em_mm
+}

@@ -1,0 +1,294 @@
+//! The PDF report: what was compared, the clinical numbers of every run, and the caution.
+
+mod canvas;
+
+use std::path::Path;
+
+use printpdf::{Mm, PdfDocument, PdfPage, PdfSaveOptions};
+
+use crate::caution::CAUTION;
+use crate::io::{write_atomic, IoError};
+use crate::results::{ResultsFile, RunStatus};
+use canvas::{grey, rgb, text_width_mm, Page, Weight, PAGE_H, PAGE_W};
+
+const MARGIN: f32 = 16.0;
+const ROW_H: f32 = 5.2;
+
+/// Builds the report's PDF bytes from a results file. Deterministic: no clock is read.
+pub fn render(results: &ResultsFile) -> Vec<u8> {
+    let mut pages = vec![];
+    let mut page = Page::default();
+    let mut y = MARGIN + 4.0;
+    page.text(
+        MARGIN,
+        y,
+        17.0,
+        Weight::Bold,
+        "Do the clinical numbers survive the acceleration?",
+    );
+    y += 7.0;
+    page.text(
+        MARGIN,
+        y,
+        10.0,
+        Weight::Regular,
+        &format!("Study {}  -  cinegauge {}", results.study, results.version),
+    );
+    y += 6.0;
+    y = caution_box(&mut page, y);
+    y += 7.0;
+
+    let subjects: std::collections::BTreeSet<&str> =
+        results.runs.iter().map(|r| r.subject.as_str()).collect();
+    let mut methods: Vec<String> = Vec::new();
+    for r in &results.runs {
+        let m = format!(
+            "{} / {} R={}",
+            r.method,
+            r.pattern,
+            trim_num(r.accel_nominal)
+        );
+        if !methods.contains(&m) {
+            methods.push(m);
+        }
+    }
+    page.text(MARGIN, y, 11.0, Weight::Bold, "What was compared");
+    y += 5.5;
+    for line in [
+        format!("{} subject(s): {}", subjects.len(), subjects.iter().cloned().collect::<Vec<_>>().join(", ")),
+        format!("Reconstructions: {}", methods.join("; ")),
+        format!(
+            "Volumes by the method of discs (area x centre-to-centre slice spacing); {}.",
+            results.runs.first().map(|r| r.blood_pool_convention.as_str()).unwrap_or("no runs")
+        ),
+        "ED = frame of largest LV volume, ES = frame of smallest. R nominal / effective (all lines / acquired lines).".into(),
+    ] {
+        page.text(MARGIN, y, 8.5, Weight::Regular, &line);
+        y += 4.3;
+    }
+    y += 3.0;
+    page.text(MARGIN, y, 11.0, Weight::Bold, "Clinical numbers per run");
+    y += 3.0;
+
+    let cols: [(&str, f32, bool); 11] = [
+        ("Subject", 16.0, false),
+        ("Method", 22.0, false),
+        ("Pattern", 20.0, false),
+        ("R nom/eff", 16.0, true),
+        ("EDV ml", 14.0, true),
+        ("ESV ml", 14.0, true),
+        ("SV ml", 14.0, true),
+        ("EF %", 12.0, true),
+        ("ED/ES", 12.0, true),
+        ("Truth EF %", 17.0, true),
+        ("dEF pp", 13.0, true),
+    ];
+    let header = |page: &mut Page, y: f32| {
+        page.fill_rect(MARGIN, y, PAGE_W - 2.0 * MARGIN, ROW_H + 1.0, grey(0.88));
+        let mut x = MARGIN + 1.0;
+        for (name, w, right) in cols {
+            if right {
+                page.text_right(x + w - 1.0, y + 4.2, 8.0, Weight::Bold, name);
+            } else {
+                page.text(x, y + 4.2, 8.0, Weight::Bold, name);
+            }
+            x += w;
+        }
+        y + ROW_H + 1.0
+    };
+    y = header(&mut page, y);
+    let mut failures = Vec::new();
+    let mut notes = Vec::new();
+    for (i, r) in results.runs.iter().enumerate() {
+        if y > PAGE_H - MARGIN - 20.0 {
+            pages.push(page);
+            page = Page::default();
+            y = header(&mut page, MARGIN);
+        }
+        if i % 2 == 1 {
+            page.fill_rect(MARGIN, y, PAGE_W - 2.0 * MARGIN, ROW_H, grey(0.96));
+        }
+        let n = r.numbers.as_ref();
+        let t = r.truth.as_ref().map(|t| &t.numbers);
+        let f1 = |v: Option<f64>| v.map(|v| format!("{v:.1}")).unwrap_or_else(|| "-".into());
+        let cells = [
+            r.subject.clone(),
+            r.method.clone(),
+            r.pattern.clone(),
+            format!("{} / {:.2}", trim_num(r.accel_nominal), r.accel_effective),
+            f1(n.map(|n| n.edv_ml)),
+            f1(n.map(|n| n.esv_ml)),
+            f1(n.map(|n| n.sv_ml)),
+            f1(n.map(|n| n.ef_pct)),
+            n.map(|n| format!("{}/{}", n.ed_frame, n.es_frame))
+                .unwrap_or_else(|| "-".into()),
+            f1(t.map(|t| t.ef_pct)),
+            match (n, t) {
+                (Some(n), Some(t)) => format!("{:+.1}", n.ef_pct - t.ef_pct),
+                _ => "-".into(),
+            },
+        ];
+        let mut x = MARGIN + 1.0;
+        for ((_, w, right), cell) in cols.iter().zip(cells.iter()) {
+            if *right {
+                page.text_right(x + w - 1.0, y + 3.8, 8.0, Weight::Regular, cell);
+            } else {
+                page.text(x, y + 3.8, 8.0, Weight::Regular, cell);
+            }
+            x += w;
+        }
+        y += ROW_H;
+        let label = format!(
+            "{} {} {} R={}",
+            r.subject,
+            r.method,
+            r.pattern,
+            trim_num(r.accel_nominal)
+        );
+        match r.status {
+            RunStatus::Failed => {
+                failures.extend(r.messages.iter().map(|m| format!("{label}: {m}")))
+            }
+            RunStatus::Ok => notes.extend(r.messages.iter().map(|m| format!("{label}: {m}"))),
+        }
+    }
+    y += 4.0;
+    page.text(
+        MARGIN,
+        y,
+        7.5,
+        Weight::Regular,
+        "Truth: method of discs on the analytic blood-pool areas of the synthetic phantom (shown only for synthetic subjects).",
+    );
+    y += 4.0;
+    page.text(
+        MARGIN,
+        y,
+        7.5,
+        Weight::Regular,
+        "dEF: EF of the run minus truth EF, in percentage points (pp).",
+    );
+    y += 6.0;
+    for (title, list) in [
+        ("Runs that failed", &failures),
+        ("Where tracking stopped on purpose", &notes),
+    ] {
+        if list.is_empty() {
+            continue;
+        }
+        if y > PAGE_H - MARGIN - 12.0 {
+            pages.push(page);
+            page = Page::default();
+            y = MARGIN;
+        }
+        page.text(MARGIN, y, 10.0, Weight::Bold, title);
+        y += 5.0;
+        for m in list.iter() {
+            for line in wrap(m, 150) {
+                if y > PAGE_H - MARGIN - 8.0 {
+                    pages.push(page);
+                    page = Page::default();
+                    y = MARGIN;
+                }
+                page.text(MARGIN, y, 7.5, Weight::Regular, &line);
+                y += 3.8;
+            }
+        }
+        y += 3.0;
+    }
+    pages.push(page);
+    let total = pages.len();
+    let mut doc = PdfDocument::new(&format!("cinegauge report {}", results.study));
+    let pdf_pages: Vec<PdfPage> = pages
+        .into_iter()
+        .enumerate()
+        .map(|(i, mut p)| {
+            footer(&mut p, i + 1, total);
+            PdfPage::new(Mm(PAGE_W), Mm(PAGE_H), p.ops)
+        })
+        .collect();
+    let mut warnings = Vec::new();
+    doc.with_pages(pdf_pages)
+        .save(&PdfSaveOptions::default(), &mut warnings)
+}
+
+/// Writes the report atomically to `path`.
+///
+/// # Errors
+/// [`IoError`] naming the file.
+pub fn write(results: &ResultsFile, path: &Path) -> Result<(), IoError> {
+    write_atomic(path, &render(results))
+}
+
+fn caution_box(page: &mut Page, y: f32) -> f32 {
+    let lines = wrap(CAUTION, 105);
+    let h = 8.0 + 4.2 * lines.len() as f32;
+    page.fill_rect(MARGIN, y, PAGE_W - 2.0 * MARGIN, h, rgb(1.0, 0.93, 0.80));
+    page.fill_rect(MARGIN, y, 1.5, h, rgb(0.75, 0.35, 0.0));
+    page.text(
+        MARGIN + 4.0,
+        y + 4.8,
+        9.0,
+        Weight::Bold,
+        "Not for diagnostic use",
+    );
+    let mut yy = y + 9.0;
+    for l in lines {
+        page.text(MARGIN + 4.0, yy, 8.5, Weight::Regular, &l);
+        yy += 4.2;
+    }
+    y + h
+}
+
+fn footer(page: &mut Page, n: usize, total: usize) {
+    let y = PAGE_H - 8.0;
+    page.line(
+        (MARGIN, y - 4.0),
+        (PAGE_W - MARGIN, y - 4.0),
+        0.4,
+        grey(0.6),
+    );
+    page.text(
+        MARGIN,
+        y,
+        7.0,
+        Weight::Regular,
+        "Research use for protocol evaluation only; not for diagnostic use.",
+    );
+    let label = format!("page {n} of {total}");
+    page.text(
+        PAGE_W - MARGIN - text_width_mm(&label, 7.0),
+        y,
+        7.0,
+        Weight::Regular,
+        &label,
+    );
+}
+
+/// Greedy word wrap at `width` characters.
+fn wrap(text: &str, width: usize) -> Vec<String> {
+    let mut lines = vec![];
+    let mut cur = String::new();
+    for word in text.split_whitespace() {
+        if !cur.is_empty() && cur.len() + 1 + word.len() > width {
+            lines.push(std::mem::take(&mut cur));
+        }
+        if !cur.is_empty() {
+            cur.push(' ');
+        }
+        cur.push_str(word);
+    }
+    if !cur.is_empty() {
+        lines.push(cur);
+    }
+    lines
+}
+
+/// `2` for 2.0, `2.5` for 2.5.
+fn trim_num(v: f64) -> String {
+    if v.fract() == 0.0 {
+        format!("{v:.0}")
+    } else {
+        format!("{v}")
+    }
+}

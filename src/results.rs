@@ -1,0 +1,241 @@
+//! Machine-readable results: one row per subject × method × pattern × R, as JSON and CSV
+//! with the same columns (DESIGN.md vocabulary). Arrays in CSV cells are JSON text.
+
+use std::path::Path;
+
+use serde::{Deserialize, Serialize};
+
+use crate::caution::CAUTION;
+use crate::io::{write_atomic, IoError};
+use crate::measure::Volumetry;
+
+/// Whether a run produced numbers.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum RunStatus {
+    /// Reconstructed, segmented and measured.
+    Ok,
+    /// Something failed; `message` says what.
+    Failed,
+}
+
+/// Clinical numbers with the result-row keys (also used for the synthetic truth).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Numbers {
+    /// End-diastolic volume, ml.
+    pub edv_ml: f64,
+    /// End-systolic volume, ml.
+    pub esv_ml: f64,
+    /// Stroke volume, ml.
+    pub sv_ml: f64,
+    /// Ejection fraction, %.
+    pub ef_pct: f64,
+    /// ED frame (zero-based).
+    pub ed_frame: usize,
+    /// ES frame (zero-based).
+    pub es_frame: usize,
+    /// Heart rate, bpm (null when unknown).
+    pub heart_rate_bpm: Option<f64>,
+    /// Peak ejection rate, ml/s.
+    pub peak_ejection_rate_ml_s: Option<f64>,
+    /// Peak filling rate, ml/s.
+    pub peak_filling_rate_ml_s: Option<f64>,
+    /// Volume per frame, ml.
+    pub volume_curve_ml: Vec<f64>,
+}
+
+impl From<&Volumetry> for Numbers {
+    fn from(v: &Volumetry) -> Self {
+        Numbers {
+            edv_ml: v.edv_ml,
+            esv_ml: v.esv_ml,
+            sv_ml: v.sv_ml,
+            ef_pct: v.ef_pct,
+            ed_frame: v.ed_frame,
+            es_frame: v.es_frame,
+            heart_rate_bpm: v.heart_rate_bpm,
+            peak_ejection_rate_ml_s: v.peak_ejection_rate_ml_s,
+            peak_filling_rate_ml_s: v.peak_filling_rate_ml_s,
+            volume_curve_ml: v.volume_curve_ml.clone(),
+        }
+    }
+}
+
+/// Truth of a synthetic subject: disc-sum numbers of the exact areas, plus the exact
+/// continuous volumes.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Truth {
+    /// Method of discs applied to the true slab-averaged areas.
+    #[serde(flatten)]
+    pub numbers: Numbers,
+    /// True slab-averaged blood-pool area `[slice][frame]`, mm².
+    pub slice_areas_mm2: Vec<Vec<f64>>,
+    /// Exact continuous cavity volume per frame, ml.
+    pub continuous_volume_curve_ml: Vec<f64>,
+}
+
+/// One result row.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RunRow {
+    /// Subject code (never a patient name).
+    pub subject: String,
+    /// Method identifier.
+    pub method: String,
+    /// Pattern identifier.
+    pub pattern: String,
+    /// Nominal acceleration.
+    pub accel_nominal: f64,
+    /// Effective acceleration (all lines ÷ acquired lines).
+    pub accel_effective: f64,
+    /// `ok` or `failed`.
+    pub status: RunStatus,
+    /// Clinical numbers (absent when failed).
+    #[serde(flatten)]
+    pub numbers: Option<Numbers>,
+    /// Blood-pool convention in words.
+    pub blood_pool_convention: String,
+    /// What went wrong, or where the tracker stopped propagation on purpose.
+    pub messages: Vec<String>,
+    /// Blood-pool area per slice and frame, mm² (absent when failed).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub slice_areas_mm2: Option<Vec<Vec<f64>>>,
+    /// Analytic truth, for synthetic subjects.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub truth: Option<Truth>,
+}
+
+/// Provenance of one input.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct InputHash {
+    /// What it is (subject code, file role).
+    pub label: String,
+    /// SHA-256 of its bytes, or of its defining parameters for generated data.
+    pub sha256: String,
+}
+
+/// The whole results file.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ResultsFile {
+    /// Always `cinegauge`.
+    pub tool: String,
+    /// Tool version.
+    pub version: String,
+    /// The caution.
+    pub caution: String,
+    /// Study code.
+    pub study: String,
+    /// Inputs and their hashes.
+    pub inputs: Vec<InputHash>,
+    /// One row per run.
+    pub runs: Vec<RunRow>,
+}
+
+impl ResultsFile {
+    /// A results file stamped with this tool's name, version and the caution.
+    pub fn new(study: &str, inputs: Vec<InputHash>, runs: Vec<RunRow>) -> Self {
+        ResultsFile {
+            tool: "cinegauge".into(),
+            version: env!("CARGO_PKG_VERSION").into(),
+            caution: CAUTION.into(),
+            study: study.into(),
+            inputs,
+            runs,
+        }
+    }
+
+    /// Writes `<stem>.json` and `<stem>.csv` into `dir`.
+    ///
+    /// # Errors
+    /// [`IoError`] naming the file.
+    pub fn write(&self, dir: &Path, stem: &str) -> Result<(), IoError> {
+        let json = serde_json::to_string_pretty(self).expect("results serialise");
+        write_atomic(
+            &dir.join(format!("{stem}.json")),
+            format!("{json}\n").as_bytes(),
+        )?;
+        write_atomic(&dir.join(format!("{stem}.csv")), &self.to_csv())
+    }
+
+    /// Reads a results file.
+    ///
+    /// # Errors
+    /// [`IoError`] naming the file and the JSON problem.
+    pub fn read(path: &Path) -> Result<Self, IoError> {
+        let text =
+            std::fs::read_to_string(path).map_err(|e| IoError::file(path, "cannot read", e))?;
+        serde_json::from_str(&text)
+            .map_err(|e| IoError::content(path, format!("not a cinegauge results file: {e}")))
+    }
+
+    /// CSV text: a leading `#` line with the caution, a header, one line per run.
+    pub fn to_csv(&self) -> Vec<u8> {
+        let mut w = csv::WriterBuilder::new().from_writer(Vec::new());
+        let header = [
+            "subject",
+            "method",
+            "pattern",
+            "accel_nominal",
+            "accel_effective",
+            "status",
+            "edv_ml",
+            "esv_ml",
+            "sv_ml",
+            "ef_pct",
+            "ed_frame",
+            "es_frame",
+            "heart_rate_bpm",
+            "peak_ejection_rate_ml_s",
+            "peak_filling_rate_ml_s",
+            "volume_curve_ml",
+            "blood_pool_convention",
+            "slice_areas_mm2",
+            "truth_edv_ml",
+            "truth_esv_ml",
+            "truth_sv_ml",
+            "truth_ef_pct",
+            "messages",
+        ];
+        w.write_record(header).expect("in-memory write");
+        let opt = |v: Option<f64>| v.map(|x| x.to_string()).unwrap_or_default();
+        for r in &self.runs {
+            let n = r.numbers.as_ref();
+            let t = r.truth.as_ref().map(|t| &t.numbers);
+            let rec = vec![
+                r.subject.clone(),
+                r.method.clone(),
+                r.pattern.clone(),
+                r.accel_nominal.to_string(),
+                r.accel_effective.to_string(),
+                match r.status {
+                    RunStatus::Ok => "ok".into(),
+                    RunStatus::Failed => "failed".into(),
+                },
+                opt(n.map(|n| n.edv_ml)),
+                opt(n.map(|n| n.esv_ml)),
+                opt(n.map(|n| n.sv_ml)),
+                opt(n.map(|n| n.ef_pct)),
+                n.map(|n| n.ed_frame.to_string()).unwrap_or_default(),
+                n.map(|n| n.es_frame.to_string()).unwrap_or_default(),
+                opt(n.and_then(|n| n.heart_rate_bpm)),
+                opt(n.and_then(|n| n.peak_ejection_rate_ml_s)),
+                opt(n.and_then(|n| n.peak_filling_rate_ml_s)),
+                n.map(|n| serde_json::to_string(&n.volume_curve_ml).expect("numbers"))
+                    .unwrap_or_default(),
+                r.blood_pool_convention.clone(),
+                r.slice_areas_mm2
+                    .as_ref()
+                    .map(|a| serde_json::to_string(a).expect("numbers"))
+                    .unwrap_or_default(),
+                opt(t.map(|t| t.edv_ml)),
+                opt(t.map(|t| t.esv_ml)),
+                opt(t.map(|t| t.sv_ml)),
+                opt(t.map(|t| t.ef_pct)),
+                r.messages.join(" | "),
+            ];
+            w.write_record(rec).expect("in-memory write");
+        }
+        let mut out = format!("# {CAUTION}\n").into_bytes();
+        out.extend(w.into_inner().expect("in-memory writer"));
+        out
+    }
+}

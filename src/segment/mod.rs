@@ -1,0 +1,305 @@
+//! LV blood-pool segmentation by seeded region growing, tracked through frames and slices.
+//!
+//! From one seed, the blood pool is grown in the seed's slice and frame ([`grow::grow`]),
+//! then carried frame by frame through the cycle in that slice (each frame seeded at the
+//! deepest interior point of the previous frame's region that is still bright), and from
+//! there slice by slice towards base and apex in every frame. Propagation into a slice
+//! stops when no pixel of the neighbouring region is bright there (the cavity has ended)
+//! or when the region would grow to more than [`SegmentParams::leak_area_ratio`] times the
+//! neighbouring slice (it has left the LV). Further seeds override propagation at their
+//! own slice and frame. Every reconstruction of a subject is segmented with the same seeds
+//! and the same parameters.
+
+pub mod grow;
+pub mod seeds;
+
+use std::collections::BTreeMap;
+
+use ndarray::{Array4, ArrayView2, ArrayView4, Axis};
+use rayon::prelude::*;
+use serde::Serialize;
+
+use grow::{deepest_point, GrowFailure, GrowParams, Region};
+pub use seeds::Seed;
+
+/// How papillary muscles and trabeculae are counted.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum BloodPoolConvention {
+    /// Counted in the blood pool (enclosed holes filled).
+    PapillaryIncluded,
+}
+
+impl BloodPoolConvention {
+    /// Text written in every output.
+    pub fn describe(self) -> &'static str {
+        match self {
+            BloodPoolConvention::PapillaryIncluded => {
+                "papillary muscles and trabeculae included in the blood pool"
+            }
+        }
+    }
+}
+
+/// Parameters of the whole segmentation.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SegmentParams {
+    /// Growth in one image.
+    pub grow: GrowParams,
+    /// A propagated region larger than this times its neighbour's area (plus
+    /// [`Self::leak_margin_px`]) is taken as having left the LV.
+    pub leak_area_ratio: f64,
+    /// Slack in pixels added to the leak test, for tiny apical regions.
+    pub leak_margin_px: usize,
+    /// Blood-pool convention.
+    pub convention: BloodPoolConvention,
+}
+
+impl Default for SegmentParams {
+    fn default() -> Self {
+        SegmentParams {
+            grow: GrowParams::default(),
+            leak_area_ratio: 2.0,
+            leak_margin_px: 30,
+            convention: BloodPoolConvention::PapillaryIncluded,
+        }
+    }
+}
+
+/// Why segmentation failed; each names the seed or the place at fault.
+#[derive(Debug, thiserror::Error, PartialEq)]
+pub enum SegmentError {
+    /// No seed given.
+    #[error("no seed given: at least one seed inside the LV blood pool is needed")]
+    NoSeeds,
+    /// A seed lies outside the stack.
+    #[error(
+        "seed #{index} ({seed}) lies outside the image stack \
+         ({slices} slices × {frames} frames × {rows} rows × {cols} columns; indices are zero-based)"
+    )]
+    SeedOutside {
+        /// One-based position in the seeds list.
+        index: usize,
+        /// The seed.
+        seed: Seed,
+        /// Stack slices.
+        slices: usize,
+        /// Stack frames.
+        frames: usize,
+        /// Stack rows.
+        rows: usize,
+        /// Stack columns.
+        cols: usize,
+    },
+    /// A seed is not in a bright blood pool.
+    #[error(
+        "seed #{index} ({seed}) is not inside a bright blood pool: its signal {value:.3} is below \
+         the blood threshold {threshold:.3}; place it inside the LV cavity"
+    )]
+    SeedDark {
+        /// One-based position in the seeds list.
+        index: usize,
+        /// The seed.
+        seed: Seed,
+        /// Signal around the seed.
+        value: f32,
+        /// Threshold it had to exceed.
+        threshold: f32,
+    },
+    /// A seed's region covers most of the image.
+    #[error(
+        "seed #{index} ({seed}) grows into {pct:.0} % of the image, far more than an LV blood pool; \
+         it is probably outside the heart"
+    )]
+    SeedRunaway {
+        /// One-based position in the seeds list.
+        index: usize,
+        /// The seed.
+        seed: Seed,
+        /// Percentage of the image covered.
+        pct: f64,
+    },
+    /// Tracking through the seed's slice lost the blood pool.
+    #[error(
+        "tracking lost the LV blood pool on slice {slice} at frame {frame} ({why}); \
+         add a seed for that slice and frame"
+    )]
+    Lost {
+        /// Slice.
+        slice: usize,
+        /// Frame.
+        frame: usize,
+        /// What happened.
+        why: String,
+    },
+}
+
+/// LV masks of a stack and what the tracker had to decide on the way.
+#[derive(Debug, Clone)]
+pub struct Segmentation {
+    /// `[slice, frame, row, col]`, true inside the LV blood pool.
+    pub masks: Array4<bool>,
+    /// Places where propagation stopped for a reason other than the cavity ending.
+    pub notes: Vec<String>,
+    /// Convention used.
+    pub convention: BloodPoolConvention,
+}
+
+type Explicit = BTreeMap<(usize, usize), (usize, Seed)>;
+
+/// Regions of every slice in one frame, and the notes made while walking them.
+type FrameColumn = (Vec<Option<Region>>, Vec<String>);
+
+/// Segments the LV blood pool of a `[slice, frame, row, col]` stack from `seeds` (the first
+/// is the primary, mid-ventricular seed).
+///
+/// # Errors
+/// A [`SegmentError`] naming the seed, or the slice and frame, at fault.
+pub fn segment(
+    stack: ArrayView4<f32>,
+    seeds: &[Seed],
+    params: &SegmentParams,
+) -> Result<Segmentation, SegmentError> {
+    let (ns, nf, nr, nc) = stack.dim();
+    let primary = *seeds.first().ok_or(SegmentError::NoSeeds)?;
+    let mut explicit = Explicit::new();
+    for (i, s) in seeds.iter().enumerate() {
+        if s.slice >= ns || s.frame >= nf || s.row >= nr || s.col >= nc {
+            return Err(SegmentError::SeedOutside {
+                index: i + 1,
+                seed: *s,
+                slices: ns,
+                frames: nf,
+                rows: nr,
+                cols: nc,
+            });
+        }
+        explicit.entry((s.slice, s.frame)).or_insert((i + 1, *s));
+    }
+    // Every explicit seed is checked, even where propagation alone would have done.
+    for (index, seed) in explicit.values() {
+        grow_explicit(stack, *index, *seed, params)?;
+    }
+
+    let image = |s: usize, f: usize| stack.index_axis(Axis(0), s).index_axis_move(Axis(0), f);
+    let s0 = primary.slice;
+    let mut chain: Vec<Option<Region>> = vec![None; nf];
+    chain[primary.frame] = Some(grow_explicit(stack, 1, primary, params)?);
+    let order: Vec<(usize, usize)> = ((primary.frame + 1)..nf)
+        .map(|f| (f, f - 1))
+        .chain((0..primary.frame).rev().map(|f| (f, f + 1)))
+        .collect();
+    for (f, from) in order {
+        let region = if let Some((index, seed)) = explicit.get(&(s0, f)) {
+            grow_explicit(stack, *index, *seed, params)?
+        } else {
+            let parent = chain[from].as_ref().expect("chain filled in order");
+            propagate(image(s0, f), parent, &params.grow).map_err(|why| SegmentError::Lost {
+                slice: s0,
+                frame: f,
+                why,
+            })?
+        };
+        chain[f] = Some(region);
+    }
+
+    let per_frame: Vec<Result<FrameColumn, SegmentError>> = (0..nf)
+        .into_par_iter()
+        .map(|f| {
+            let mut col: Vec<Option<Region>> = vec![None; ns];
+            let mut notes = Vec::new();
+            col[s0] = chain[f].clone();
+            let up: Vec<usize> = ((s0 + 1)..ns).collect();
+            let down: Vec<usize> = (0..s0).rev().collect();
+            for path in [up, down] {
+                let mut parent = col[s0].clone();
+                for s in path {
+                    let next = if let Some((index, seed)) = explicit.get(&(s, f)) {
+                        Some(grow_explicit(stack, *index, *seed, params)?)
+                    } else if let Some(p) = &parent {
+                        match propagate(image(s, f), p, &params.grow) {
+                            Ok(r) if leaked(&r, p, params) => {
+                                notes.push(format!(
+                                    "slice {s}, frame {f}: region {:.1}× the neighbouring slice's \
+                                     area, taken as outside the LV; not counted",
+                                    r.area_px() as f64 / p.area_px().max(1) as f64
+                                ));
+                                None
+                            }
+                            Ok(r) => Some(r),
+                            Err(_) => None,
+                        }
+                    } else {
+                        None
+                    };
+                    col[s] = next.clone();
+                    parent = next;
+                }
+            }
+            Ok((col, notes))
+        })
+        .collect();
+
+    let mut masks = Array4::<bool>::from_elem((ns, nf, nr, nc), false);
+    let mut notes = Vec::new();
+    for (f, res) in per_frame.into_iter().enumerate() {
+        let (col, n) = res?;
+        notes.extend(n);
+        for (s, region) in col.into_iter().enumerate() {
+            if let Some(r) = region {
+                masks
+                    .index_axis_mut(Axis(0), s)
+                    .index_axis_mut(Axis(0), f)
+                    .assign(&r.mask);
+            }
+        }
+    }
+    Ok(Segmentation {
+        masks,
+        notes,
+        convention: params.convention,
+    })
+}
+
+fn leaked(r: &Region, parent: &Region, p: &SegmentParams) -> bool {
+    r.area_px() as f64 > p.leak_area_ratio * parent.area_px() as f64 + p.leak_margin_px as f64
+}
+
+fn grow_explicit(
+    stack: ArrayView4<f32>,
+    index: usize,
+    seed: Seed,
+    params: &SegmentParams,
+) -> Result<Region, SegmentError> {
+    let img = stack
+        .index_axis(Axis(0), seed.slice)
+        .index_axis_move(Axis(0), seed.frame);
+    grow::grow(img, (seed.row, seed.col), None, &params.grow).map_err(|e| match e {
+        GrowFailure::Dark { value, threshold } => SegmentError::SeedDark {
+            index,
+            seed,
+            value,
+            threshold,
+        },
+        GrowFailure::Runaway { fraction } => SegmentError::SeedRunaway {
+            index,
+            seed,
+            pct: 100.0 * fraction,
+        },
+    })
+}
+
+/// Grows in a neighbouring image from the deepest point of `parent` that is bright there.
+fn propagate(image: ArrayView2<f32>, parent: &Region, p: &GrowParams) -> Result<Region, String> {
+    let t = parent.threshold;
+    let start = deepest_point(parent.mask.view(), |r, c| image[(r, c)] >= t)
+        .ok_or_else(|| "no pixel of the neighbouring region is bright here".to_string())?;
+    grow::grow(image, start, Some(t), p).map_err(|e| match e {
+        GrowFailure::Dark { value, threshold } => {
+            format!("signal {value:.3} below the threshold {threshold:.3}")
+        }
+        GrowFailure::Runaway { fraction } => {
+            format!("region covers {:.0} % of the image", 100.0 * fraction)
+        }
+    })
+}

@@ -1,0 +1,262 @@
+//! The real binary in fresh temporary folders: demo, simulate → measure, bad seeds, help.
+
+use std::path::Path;
+use std::process::{Command, Output};
+
+use cinegauge::tolerances::{EDV_REL_FULLY_SAMPLED, EF_PP_FULLY_SAMPLED};
+
+fn cinegauge(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_cinegauge"))
+        .args(args)
+        .output()
+        .expect("binary runs")
+}
+
+fn text(o: &Output) -> String {
+    format!(
+        "{}{}",
+        String::from_utf8_lossy(&o.stdout),
+        String::from_utf8_lossy(&o.stderr)
+    )
+}
+
+/// A small synthetic study (fast): 10 slices of 96×96 at 2 mm, 20 frames, 4 coils.
+fn simulate(dir: &Path) {
+    let o = cinegauge(&[
+        "simulate",
+        "--out",
+        dir.to_str().unwrap(),
+        "--rows",
+        "96",
+        "--cols",
+        "96",
+        "--pixel-mm",
+        "2.0",
+        "--slices",
+        "11",
+        "--coils",
+        "4",
+        "--edv-ml",
+        "130",
+        "--ef-pct",
+        "55",
+        "--quiet",
+    ]);
+    assert!(o.status.success(), "{}", text(&o));
+}
+
+#[test]
+fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
+    let tmp = tempfile::tempdir().unwrap();
+    let out = tmp.path().join("demo");
+    let o = cinegauge(&["demo", "--out", out.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", text(&o));
+    for f in ["report.pdf", "results.json", "results.csv"] {
+        let meta = std::fs::metadata(out.join(f)).unwrap_or_else(|_| panic!("{f} missing"));
+        assert!(meta.len() > 200, "{f} is nearly empty");
+    }
+    let pdf = std::fs::read(out.join("report.pdf")).unwrap();
+    assert!(pdf.starts_with(b"%PDF-"), "report is a PDF");
+    let v: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(out.join("results.json")).unwrap()).unwrap();
+    assert!(v["caution"]
+        .as_str()
+        .unwrap()
+        .contains("not for diagnostic use"));
+    let runs = v["runs"].as_array().unwrap();
+    assert_eq!(
+        runs.len(),
+        9,
+        "3 subjects × (reference, zero-filled R=2, R=4)"
+    );
+    let mut references = 0;
+    for r in runs.iter().filter(|r| r["method"] == "reference") {
+        references += 1;
+        let (ef, tef) = (
+            r["ef_pct"].as_f64().unwrap(),
+            r["truth"]["ef_pct"].as_f64().unwrap(),
+        );
+        let (edv, tedv) = (
+            r["edv_ml"].as_f64().unwrap(),
+            r["truth"]["edv_ml"].as_f64().unwrap(),
+        );
+        assert!(
+            (ef - tef).abs() <= EF_PP_FULLY_SAMPLED,
+            "{}: EF {ef} vs {tef}",
+            r["subject"]
+        );
+        assert!(
+            (edv - tedv).abs() / tedv <= EDV_REL_FULLY_SAMPLED,
+            "{}: EDV {edv} vs {tedv}",
+            r["subject"]
+        );
+        assert_eq!(r["accel_nominal"].as_f64(), Some(1.0));
+        assert_eq!(r["pattern"], "full");
+    }
+    assert_eq!(references, 3);
+    for r in runs.iter().filter(|r| r["method"] == "zero-filled") {
+        let nominal = r["accel_nominal"].as_f64().unwrap();
+        let eff = r["accel_effective"].as_f64().unwrap();
+        assert!(
+            eff > 1.0 && eff < nominal,
+            "the ACS block makes effective R below nominal: {eff} vs {nominal}"
+        );
+    }
+    let csv = std::fs::read_to_string(out.join("results.csv")).unwrap();
+    assert!(
+        csv.starts_with("# Research use"),
+        "CSV opens with the caution line"
+    );
+    assert_eq!(csv.lines().count(), 1 + 1 + 9, "caution, header, 9 rows");
+    assert!(csv
+        .lines()
+        .nth(1)
+        .unwrap()
+        .starts_with("subject,method,pattern,accel_nominal,accel_effective"));
+
+    // Same seed, same bytes.
+    let again = tmp.path().join("again");
+    let o = cinegauge(&["demo", "--out", again.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success());
+    for f in ["results.json", "results.csv", "report.pdf"] {
+        assert!(
+            std::fs::read(out.join(f)).unwrap() == std::fs::read(again.join(f)).unwrap(),
+            "{f} differs between runs"
+        );
+    }
+}
+
+#[test]
+fn simulate_then_measure_matches_truth_and_bad_seeds_are_named() {
+    let tmp = tempfile::tempdir().unwrap();
+    let sim = tmp.path().join("sim");
+    simulate(&sim);
+    for f in [
+        "kspace/slice_00.npy",
+        "kspace/slice_10.npy",
+        "kspace/geometry.json",
+        "reference/images.npy",
+        "truth.json",
+        "seeds.toml",
+    ] {
+        assert!(sim.join(f).exists(), "{f} missing");
+    }
+    let measured = tmp.path().join("measured");
+    let images = sim.join("reference");
+    let o = cinegauge(&[
+        "measure",
+        "--images",
+        images.to_str().unwrap(),
+        "--seeds",
+        sim.join("seeds.toml").to_str().unwrap(),
+        "--out",
+        measured.to_str().unwrap(),
+        "--json",
+        "--quiet",
+    ]);
+    assert!(o.status.success(), "{}", text(&o));
+    let m: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(measured.join("measurements.json")).unwrap())
+            .unwrap();
+    let t: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(sim.join("truth.json")).unwrap()).unwrap();
+    let run = &m["runs"][0];
+    let (ef, tef) = (
+        run["ef_pct"].as_f64().unwrap(),
+        t["truth"]["ef_pct"].as_f64().unwrap(),
+    );
+    assert!(
+        (ef - tef).abs() <= EF_PP_FULLY_SAMPLED,
+        "EF {ef} vs truth {tef}"
+    );
+    assert_eq!(run["slice_areas_mm2"].as_array().unwrap().len(), 11);
+    assert!(measured.join("measurements.csv").exists());
+    let stdout: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(stdout["runs"][0]["ef_pct"], run["ef_pct"]);
+
+    // A seed in the air at the image corner, and a seed beyond the last row.
+    let cases = [
+        (
+            "background",
+            "[[seed]]\nslice = 5\nframe = 0\nrow = 2\ncol = 3\n",
+            "row 2, col 3",
+        ),
+        (
+            "outside",
+            "[[seed]]\nslice = 5\nframe = 0\nrow = 500\ncol = 40\n",
+            "row 500, col 40",
+        ),
+    ];
+    for (name, toml, needle) in cases {
+        let seeds = tmp.path().join(format!("{name}.toml"));
+        std::fs::write(&seeds, toml).unwrap();
+        let o = cinegauge(&[
+            "measure",
+            "--images",
+            images.to_str().unwrap(),
+            "--seeds",
+            seeds.to_str().unwrap(),
+            "--out",
+            tmp.path().join(name).to_str().unwrap(),
+        ]);
+        assert_eq!(o.status.code(), Some(1), "{name}: {}", text(&o));
+        let msg = text(&o);
+        assert!(
+            msg.contains("seed #1") && msg.contains(needle),
+            "{name}: {msg}"
+        );
+        assert!(
+            !tmp.path().join(name).join("measurements.json").exists(),
+            "{name}: nothing written"
+        );
+    }
+}
+
+#[test]
+fn help_carries_the_caution_and_examples() {
+    let o = cinegauge(&["--help"]);
+    let h = text(&o);
+    assert!(o.status.success());
+    assert!(
+        h.contains("not for diagnostic use") && h.contains("responsible physician"),
+        "{h}"
+    );
+    assert!(h.contains("Examples:"));
+    for cmd in ["demo", "simulate", "measure"] {
+        let o = cinegauge(&[cmd, "--help"]);
+        assert!(o.status.success(), "{cmd}");
+        assert!(text(&o).contains("Example"), "{cmd} --help has an example");
+    }
+    let o = cinegauge(&["measure", "--images"]);
+    assert_eq!(o.status.code(), Some(2), "usage errors exit 2");
+}
+
+#[test]
+fn bad_geometry_sidecar_is_named() {
+    let tmp = tempfile::tempdir().unwrap();
+    let sim = tmp.path().join("sim");
+    simulate(&sim);
+    let sidecar = sim.join("reference/geometry.json");
+    let mut g: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(&sidecar).unwrap()).unwrap();
+    g["pixel_spacing_mm"] = serde_json::json!([2.0]);
+    g["scanner_note"] = serde_json::json!("written by another tool");
+    std::fs::write(&sidecar, serde_json::to_vec(&g).unwrap()).unwrap();
+    let o = cinegauge(&[
+        "measure",
+        "--images",
+        sim.join("reference").to_str().unwrap(),
+        "--seeds",
+        sim.join("seeds.toml").to_str().unwrap(),
+        "--out",
+        tmp.path().join("m").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(1));
+    let msg = text(&o);
+    assert!(
+        msg.contains("geometry.json")
+            && msg.contains("pixel_spacing_mm")
+            && msg.contains("found 1"),
+        "{msg}"
+    );
+}

@@ -1,0 +1,64 @@
+//! Helpers shared by the integration tests.
+#![allow(dead_code)]
+
+use num_complex::Complex64;
+use rand::rngs::Xoshiro256PlusPlus;
+use rand::{RngExt, SeedableRng};
+
+/// The centred DFT straight from its definition (textbook, e.g. Oppenheim & Schafer,
+/// "Discrete-Time Signal Processing", DFT with the index origin moved to floor(N/2)):
+/// `X[k] = N^(-1/2) Σ_n x[n] exp(∓2πi (k − ⌊N/2⌋)(n − ⌊N/2⌋) / N)`, in f64.
+pub fn naive_centred_dft_1d(x: &[Complex64], inverse: bool) -> Vec<Complex64> {
+    let n = x.len();
+    let h = (n / 2) as f64;
+    let sign = if inverse { 1.0 } else { -1.0 };
+    (0..n)
+        .map(|k| {
+            let kk = k as f64 - h;
+            let sum: Complex64 = x
+                .iter()
+                .enumerate()
+                .map(|(m, v)| {
+                    let mm = m as f64 - h;
+                    v * Complex64::from_polar(
+                        1.0,
+                        sign * std::f64::consts::TAU * kk * mm / n as f64,
+                    )
+                })
+                .sum();
+            sum / (n as f64).sqrt()
+        })
+        .collect()
+}
+
+/// Naive 2-D centred DFT of a row-major `rows × cols` array: rows, then columns.
+pub fn naive_centred_dft_2d(
+    x: &[Complex64],
+    rows: usize,
+    cols: usize,
+    inverse: bool,
+) -> Vec<Complex64> {
+    let mut a = x.to_vec();
+    for r in 0..rows {
+        let line = naive_centred_dft_1d(&a[r * cols..(r + 1) * cols], inverse);
+        a[r * cols..(r + 1) * cols].copy_from_slice(&line);
+    }
+    for c in 0..cols {
+        let col: Vec<Complex64> = (0..rows).map(|r| a[r * cols + c]).collect();
+        let t = naive_centred_dft_1d(&col, inverse);
+        for r in 0..rows {
+            a[r * cols + c] = t[r];
+        }
+    }
+    a
+}
+
+/// A reproducible random generator for tests.
+pub fn rng(seed: u64) -> Xoshiro256PlusPlus {
+    Xoshiro256PlusPlus::seed_from_u64(seed)
+}
+
+/// Uniform random value in [lo, hi).
+pub fn uniform(r: &mut Xoshiro256PlusPlus, lo: f64, hi: f64) -> f64 {
+    r.random_range(lo..hi)
+}
