@@ -10,7 +10,7 @@
 //! No NaN can come out: an empty blood pool is an error.
 
 use ndarray::{ArrayView4, Axis};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::geometry::Geometry;
 
@@ -40,13 +40,9 @@ pub enum MeasureError {
     },
 }
 
-/// Clinical numbers of one image series.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct Volumetry {
-    /// Blood-pool area per slice and frame, `[slice][frame]`, mm².
-    pub slice_areas_mm2: Vec<Vec<f64>>,
-    /// Volume per frame, ml.
-    pub volume_curve_ml: Vec<f64>,
+/// Clinical numbers of one volume curve, with the result-row keys (DESIGN.md vocabulary).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Numbers {
     /// End-diastolic volume, ml.
     pub edv_ml: f64,
     /// End-systolic volume, ml.
@@ -59,12 +55,24 @@ pub struct Volumetry {
     pub ed_frame: usize,
     /// End-systolic frame (zero-based).
     pub es_frame: usize,
-    /// Heart rate from the R–R interval, when the data gives one.
+    /// Heart rate from the R–R interval; `None` (null) when the data gives none.
     pub heart_rate_bpm: Option<f64>,
     /// Peak ejection rate, ml/s (positive); `None` with fewer than 2 frames.
     pub peak_ejection_rate_ml_s: Option<f64>,
     /// Peak filling rate, ml/s; `None` with fewer than 2 frames.
     pub peak_filling_rate_ml_s: Option<f64>,
+    /// Volume per frame, ml.
+    pub volume_curve_ml: Vec<f64>,
+}
+
+/// Clinical numbers of one image series and the slice areas they came from.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Volumetry {
+    /// Blood-pool area per slice and frame, `[slice][frame]`, mm².
+    pub slice_areas_mm2: Vec<Vec<f64>>,
+    /// EDV, ESV, SV, EF, phases, rates and the volume curve.
+    #[serde(flatten)]
+    pub numbers: Numbers,
 }
 
 /// Fixed ED/ES frames, when the plan sets them instead of max/min volume.
@@ -103,6 +111,19 @@ pub fn measure(
 }
 
 /// Volumetry from slice areas `[slice][frame]` in mm².
+///
+/// ```
+/// use cinegauge::geometry::Geometry;
+/// use cinegauge::measure::{volumetry_from_areas, PhaseChoice};
+/// let g = Geometry {
+///     row_spacing_mm: 1.5, col_spacing_mm: 1.5, slice_thickness_mm: 8.0, slice_spacing_mm: 10.0,
+///     trigger_times_ms: vec![0.0, 400.0], rr_interval_ms: Some(800.0),
+/// };
+/// // Two slices of 6000 and 4000 mm² at ED, 2500 mm² each at ES, discs 10 mm apart.
+/// let v = volumetry_from_areas(vec![vec![6000.0, 2500.0], vec![4000.0, 2500.0]], &g, PhaseChoice::default()).unwrap();
+/// let n = &v.numbers;
+/// assert_eq!((n.edv_ml, n.esv_ml, n.ef_pct), (100.0, 50.0, 50.0));
+/// ```
 ///
 /// # Errors
 /// [`MeasureError::Empty`] when every volume is zero, [`MeasureError::Frames`] when the
@@ -143,20 +164,22 @@ pub fn volumetry_from_areas(
     let rates = rates_ml_s(&curve, &geom.trigger_times_ms);
     Ok(Volumetry {
         slice_areas_mm2: areas,
-        edv_ml: edv,
-        esv_ml: esv,
-        sv_ml: sv,
-        ef_pct: 100.0 * sv / edv,
-        ed_frame: ed,
-        es_frame: es,
-        heart_rate_bpm: geom.rr_interval_ms.map(|rr| 60_000.0 / rr),
-        peak_ejection_rate_ml_s: rates
-            .as_ref()
-            .map(|d| d.iter().fold(0.0f64, |m, v| m.max(-v))),
-        peak_filling_rate_ml_s: rates
-            .as_ref()
-            .map(|d| d.iter().fold(0.0f64, |m, v| m.max(*v))),
-        volume_curve_ml: curve,
+        numbers: Numbers {
+            edv_ml: edv,
+            esv_ml: esv,
+            sv_ml: sv,
+            ef_pct: 100.0 * sv / edv,
+            ed_frame: ed,
+            es_frame: es,
+            heart_rate_bpm: geom.rr_interval_ms.map(|rr| 60_000.0 / rr),
+            peak_ejection_rate_ml_s: rates
+                .as_ref()
+                .map(|d| d.iter().fold(0.0f64, |m, v| m.max(-v))),
+            peak_filling_rate_ml_s: rates
+                .as_ref()
+                .map(|d| d.iter().fold(0.0f64, |m, v| m.max(*v))),
+            volume_curve_ml: curve,
+        },
     })
 }
 

@@ -9,7 +9,7 @@ use crate::geometry::Geometry;
 use crate::measure::{self, MeasureError, PhaseChoice, Volumetry};
 use crate::phantom::Phantom;
 use crate::recon::{ReconInput, ReconPlan, Reconstructor};
-use crate::results::{Numbers, RunRow, RunStatus, Truth};
+use crate::results::{RunRow, RunStatus, Truth};
 use crate::sampling::{SamplingError, SamplingSpec};
 use crate::segment::{self, Seed, SegmentError, SegmentParams, Segmentation};
 
@@ -119,7 +119,7 @@ pub fn phantom_truth(ph: &Phantom) -> Truth {
     let v = measure::volumetry_from_areas(t.slice_areas_mm2.clone(), &geom, PhaseChoice::default())
         .expect("phantom volumes are positive");
     Truth {
-        numbers: Numbers::from(&v),
+        numbers: v.numbers,
         slice_areas_mm2: t.slice_areas_mm2,
         continuous_volume_curve_ml: t.continuous_volume_curve_ml,
     }
@@ -136,7 +136,7 @@ pub fn result_row(
     let (status, numbers, areas, messages) = match outcome {
         Ok((seg, vol)) => (
             RunStatus::Ok,
-            Some(Numbers::from(&vol)),
+            Some(vol.numbers),
             Some(vol.slice_areas_mm2),
             seg.notes,
         ),

@@ -7,7 +7,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::caution::CAUTION;
 use crate::io::{write_atomic, IoError};
-use crate::measure::Volumetry;
+pub use crate::measure::Numbers;
 
 /// Whether a run produced numbers.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -17,48 +17,6 @@ pub enum RunStatus {
     Ok,
     /// Something failed; `message` says what.
     Failed,
-}
-
-/// Clinical numbers with the result-row keys (also used for the synthetic truth).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct Numbers {
-    /// End-diastolic volume, ml.
-    pub edv_ml: f64,
-    /// End-systolic volume, ml.
-    pub esv_ml: f64,
-    /// Stroke volume, ml.
-    pub sv_ml: f64,
-    /// Ejection fraction, %.
-    pub ef_pct: f64,
-    /// ED frame (zero-based).
-    pub ed_frame: usize,
-    /// ES frame (zero-based).
-    pub es_frame: usize,
-    /// Heart rate, bpm (null when unknown).
-    pub heart_rate_bpm: Option<f64>,
-    /// Peak ejection rate, ml/s.
-    pub peak_ejection_rate_ml_s: Option<f64>,
-    /// Peak filling rate, ml/s.
-    pub peak_filling_rate_ml_s: Option<f64>,
-    /// Volume per frame, ml.
-    pub volume_curve_ml: Vec<f64>,
-}
-
-impl From<&Volumetry> for Numbers {
-    fn from(v: &Volumetry) -> Self {
-        Numbers {
-            edv_ml: v.edv_ml,
-            esv_ml: v.esv_ml,
-            sv_ml: v.sv_ml,
-            ef_pct: v.ef_pct,
-            ed_frame: v.ed_frame,
-            es_frame: v.es_frame,
-            heart_rate_bpm: v.heart_rate_bpm,
-            peak_ejection_rate_ml_s: v.peak_ejection_rate_ml_s,
-            peak_filling_rate_ml_s: v.peak_filling_rate_ml_s,
-            volume_curve_ml: v.volume_curve_ml.clone(),
-        }
-    }
 }
 
 /// Truth of a synthetic subject: disc-sum numbers of the exact areas, plus the exact

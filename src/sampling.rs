@@ -144,6 +144,14 @@ pub struct SamplingMask {
 
 impl SamplingMask {
     /// Effective acceleration: all lines ÷ acquired lines (ACS included).
+    ///
+    /// ```
+    /// use cinegauge::sampling::{Pattern, SamplingSpec};
+    /// // 64 lines, R = 4, 8 ACS lines: ACS 28..=35 (8), and lines with |ky − 32| divisible
+    /// // by 4 outside it, 0, 4, …, 24 (7) and 36, …, 60 (7): 22 lines in all.
+    /// let m = SamplingSpec::new(Pattern::Equispaced, 4.0, 8).unwrap().mask(1, 64).unwrap();
+    /// assert!((m.accel_effective() - 64.0 / 22.0).abs() < 1e-12);
+    /// ```
     pub fn accel_effective(&self) -> f64 {
         let acquired = self.lines.iter().filter(|&&b| b).count();
         self.lines.len() as f64 / acquired.max(1) as f64

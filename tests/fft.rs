@@ -18,6 +18,12 @@ fn random_planes(rows: usize, cols: usize, batch: usize, seed: u64) -> Array3<Co
     })
 }
 
+fn to_c64<'a>(v: impl IntoIterator<Item = &'a Complex32>) -> Vec<Complex64> {
+    v.into_iter()
+        .map(|z| Complex64::new(z.re.into(), z.im.into()))
+        .collect()
+}
+
 fn rel_err(a: &[Complex64], b: &[Complex64]) -> f64 {
     let num: f64 = a.iter().zip(b).map(|(x, y)| (x - y).norm_sqr()).sum();
     let den: f64 = b.iter().map(|y| y.norm_sqr()).sum();
@@ -36,18 +42,10 @@ fn matches_the_dft_definition_forward_and_inverse() {
         for dir in [Direction::Forward, Direction::Inverse] {
             let got = fft.apply(x.clone(), dir);
             for b in 0..3 {
-                let input: Vec<Complex64> = x
-                    .index_axis(ndarray::Axis(0), b)
-                    .iter()
-                    .map(|z| Complex64::new(z.re.into(), z.im.into()))
-                    .collect();
+                let input = to_c64(x.index_axis(ndarray::Axis(0), b).iter());
                 let want =
                     common::naive_centred_dft_2d(&input, rows, cols, dir == Direction::Inverse);
-                let have: Vec<Complex64> = got
-                    .index_axis(ndarray::Axis(0), b)
-                    .iter()
-                    .map(|z| Complex64::new(z.re.into(), z.im.into()))
-                    .collect();
+                let have = to_c64(got.index_axis(ndarray::Axis(0), b).iter());
                 let e = rel_err(&have, &want);
                 assert!(
                     e < FFT_REL_ERROR,
@@ -72,14 +70,8 @@ fn parseval_and_round_trip() {
             "{rows}x{cols}: energy {ex} vs {ek}"
         );
         let back = fft.apply(k, Direction::Inverse);
-        let a: Vec<Complex64> = back
-            .iter()
-            .map(|z| Complex64::new(z.re.into(), z.im.into()))
-            .collect();
-        let b: Vec<Complex64> = x
-            .iter()
-            .map(|z| Complex64::new(z.re.into(), z.im.into()))
-            .collect();
+        let a = to_c64(back.iter());
+        let b = to_c64(x.iter());
         let e = rel_err(&a, &b);
         assert!(
             e < FFT_REL_ERROR,
@@ -133,14 +125,8 @@ fn matches_numpy_fixture() {
         let x = Array3::from_shape_vec((1, rows, cols), get("input")).unwrap();
         let want = get("forward");
         let got = CenteredFft2::new(rows, cols).apply(x, Direction::Forward);
-        let a: Vec<Complex64> = got
-            .iter()
-            .map(|z| Complex64::new(z.re.into(), z.im.into()))
-            .collect();
-        let b: Vec<Complex64> = want
-            .iter()
-            .map(|z| Complex64::new(z.re.into(), z.im.into()))
-            .collect();
+        let a = to_c64(got.iter());
+        let b = to_c64(want.iter());
         let e = rel_err(&a, &b);
         assert!(
             e < FFT_REL_ERROR,

@@ -43,31 +43,33 @@ fn fully_sampled_demo_subjects_match_truth() {
             pipeline::measure_series(stack.view(), &ph.geometry(), &seeds, &params).unwrap();
 
         let t = &truth.numbers;
-        let ef_err = (vol.ef_pct - t.ef_pct).abs();
-        let edv_err = (vol.edv_ml - t.edv_ml).abs() / t.edv_ml;
+        let ef_err = (vol.numbers.ef_pct - t.ef_pct).abs();
+        let edv_err = (vol.numbers.edv_ml - t.edv_ml).abs() / t.edv_ml;
         assert!(
             ef_err <= EF_PP_FULLY_SAMPLED,
             "{}: EF {:.2} vs truth {:.2}",
             subject.code,
-            vol.ef_pct,
+            vol.numbers.ef_pct,
             t.ef_pct
         );
         assert!(
             edv_err <= EDV_REL_FULLY_SAMPLED,
             "{}: EDV {:.1} vs truth {:.1}",
             subject.code,
-            vol.edv_ml,
+            vol.numbers.edv_ml,
             t.edv_ml
         );
         assert!(
-            (vol.esv_ml - t.esv_ml).abs() / t.esv_ml <= 0.05,
+            (vol.numbers.esv_ml - t.esv_ml).abs() / t.esv_ml <= 0.05,
             "{}: ESV {:.1} vs {:.1}",
             subject.code,
-            vol.esv_ml,
+            vol.numbers.esv_ml,
             t.esv_ml
         );
         // Sanity of the invariants: EDV ≥ ESV, EF in [0, 100].
-        assert!(vol.edv_ml >= vol.esv_ml && (0.0..=100.0).contains(&vol.ef_pct));
+        assert!(
+            vol.numbers.edv_ml >= vol.numbers.esv_ml && (0.0..=100.0).contains(&vol.numbers.ef_pct)
+        );
 
         // Analytic masks: pixels that are at least half LV blood pool (papillaries in).
         let spec = ph.spec();

@@ -44,7 +44,7 @@ fn disc_sum_converges_to_the_ellipsoid_volume() {
             PhaseChoice::default(),
         )
         .unwrap();
-        let err = ((v.edv_ml - exact) / exact).abs();
+        let err = ((v.numbers.edv_ml - exact) / exact).abs();
         assert!(
             err < last,
             "error must shrink as discs get thinner: h={h} err={err} previous {last}"
@@ -82,9 +82,9 @@ fn rasterised_ellipsoid_masks_give_the_volume() {
     let v = measure(masks.view(), &geometry(h, 1, px), PhaseChoice::default()).unwrap();
     let exact = 4.0 / 3.0 * PI * a * b * c / 1000.0;
     assert!(
-        ((v.edv_ml - exact) / exact).abs() < 5e-3,
+        ((v.numbers.edv_ml - exact) / exact).abs() < 5e-3,
         "{} vs {exact}",
-        v.edv_ml
+        v.numbers.edv_ml
     );
 }
 
@@ -114,20 +114,20 @@ fn ef_bounds_and_phase_rules() {
     let areas: Vec<Vec<f64>> = vec![vec![6000.0, 4000.0, 2500.0, 5000.0]; 2];
     let g = geometry(10.0, 4, 1.0);
     let v = volumetry_from_areas(areas, &g, PhaseChoice::default()).unwrap();
-    assert_eq!((v.ed_frame, v.es_frame), (0, 2));
-    assert!((v.edv_ml - 120.0).abs() < 1e-9 && (v.esv_ml - 50.0).abs() < 1e-9);
-    assert!((v.ef_pct - 58.333_333_333).abs() < 1e-6);
-    assert!(v.edv_ml >= v.esv_ml && (0.0..=100.0).contains(&v.ef_pct));
+    assert_eq!((v.numbers.ed_frame, v.numbers.es_frame), (0, 2));
+    assert!((v.numbers.edv_ml - 120.0).abs() < 1e-9 && (v.numbers.esv_ml - 50.0).abs() < 1e-9);
+    assert!((v.numbers.ef_pct - 58.333_333_333).abs() < 1e-6);
+    assert!(v.numbers.edv_ml >= v.numbers.esv_ml && (0.0..=100.0).contains(&v.numbers.ef_pct));
     // Peak rates by differences (hand-worked): frames 40 ms apart, V = 120, 80, 50, 100 ml.
     // dV/dt: frame 0 (one-sided) (80 − 120)/40 ms = −1000 ml/s; frame 1 (50 − 120)/80 = −875;
     // frame 2 (100 − 80)/80 = 250; frame 3 (one-sided) (100 − 50)/40 = 1250 ml/s.
     assert!(
-        (v.peak_ejection_rate_ml_s.unwrap() - 1000.0).abs() < 1e-9,
+        (v.numbers.peak_ejection_rate_ml_s.unwrap() - 1000.0).abs() < 1e-9,
         "{:?}",
-        v.peak_ejection_rate_ml_s
+        v.numbers.peak_ejection_rate_ml_s
     );
-    assert!((v.peak_filling_rate_ml_s.unwrap() - 1250.0).abs() < 1e-9);
-    assert!((v.heart_rate_bpm.unwrap() - 375.0).abs() < 1e-9);
+    assert!((v.numbers.peak_filling_rate_ml_s.unwrap() - 1250.0).abs() < 1e-9);
+    assert!((v.numbers.heart_rate_bpm.unwrap() - 375.0).abs() < 1e-9);
 }
 
 #[test]

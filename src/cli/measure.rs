@@ -32,9 +32,18 @@ pub struct MeasureArgs {
     /// Subject code written into the results.
     #[arg(long, default_value = "subject")]
     pub subject: String,
-    /// Method label written into the results.
+    /// Method label written into the results (e.g. `reference`, `external:my-net`).
     #[arg(long, default_value = "reference")]
     pub method: String,
+    /// Sampling pattern label written into the results.
+    #[arg(long, default_value = "full")]
+    pub pattern: String,
+    /// Nominal acceleration written into the results.
+    #[arg(long, value_name = "R", default_value_t = 1.0)]
+    pub accel: f64,
+    /// Effective acceleration (all lines ÷ acquired lines), when known; defaults to --accel.
+    #[arg(long, value_name = "R")]
+    pub accel_effective: Option<f64>,
     /// Print the measurements as JSON on stdout.
     #[arg(long)]
     pub json: bool,

@@ -42,6 +42,12 @@ const KNOTS: [(f64, f64); 5] = [
 ///
 /// Half-cosine interpolation between knots: smooth, monotone between knots, with zero
 /// slope at each knot, so ED and ES are exact extrema.
+///
+/// ```
+/// use cinegauge::phantom::anatomy::volume_at_phase;
+/// assert_eq!(volume_at_phase(150.0, 60.0, 0.0), 150.0);
+/// assert!((volume_at_phase(150.0, 60.0, 0.36) - 60.0).abs() < 1e-9);
+/// ```
 pub fn volume_at_phase(edv_ml: f64, esv_ml: f64, phase: f64) -> f64 {
     let p = phase.rem_euclid(1.0);
     let sv = edv_ml - esv_ml;
@@ -57,6 +63,12 @@ pub fn volume_at_phase(edv_ml: f64, esv_ml: f64, phase: f64) -> f64 {
 }
 
 /// Volume (mm³) of an ellipsoid with semi-axes `a, b, c`, cut at `h` above its centre.
+///
+/// ```
+/// use cinegauge::phantom::anatomy::truncated_ellipsoid_volume;
+/// let whole = truncated_ellipsoid_volume(10.0, 20.0, 30.0, 30.0);
+/// assert!((whole - 4.0 / 3.0 * std::f64::consts::PI * 6000.0).abs() < 1e-6);
+/// ```
 pub fn truncated_ellipsoid_volume(a: f64, b: f64, c: f64, h: f64) -> f64 {
     let h = h.clamp(-c, c);
     PI * a * b * (h - h * h * h / (3.0 * c * c) + 2.0 * c / 3.0)

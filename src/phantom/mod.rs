@@ -253,8 +253,8 @@ impl Phantom {
                 Scene {
                     lv,
                     lv_centre: (0.06 * fov_x, 0.03 * fov_y),
-                    rv_axes: ((r_epi + 8.0) * rv_scale, 1.25 * r_epi * rv_scale),
-                    rv_offset: (-0.5 * r_epi, -0.1 * r_epi),
+                    rv_axes: ((r_epi + 3.0) * rv_scale, 1.12 * r_epi * rv_scale),
+                    rv_offset: (-0.38 * r_epi, -0.12 * r_epi),
                     body_axes,
                     fat_mm: 9.0,
                     lungs: [
