@@ -113,13 +113,13 @@ pub fn runs() -> Vec<RunRequest> {
         other => panic!("embedded demo names pattern `{other}`, which the demo does not run"),
     };
     let method = recon::by_id(&c.method).expect("embedded demo names a registered method");
-    let mut v = vec![RunRequest {
-        method: recon::by_id("reference").expect("registered"),
-        sampling: SamplingSpec::full(),
-    }];
+    let mut v = vec![RunRequest::with_defaults(
+        recon::by_id("reference").expect("registered"),
+        SamplingSpec::full(),
+    )];
     for r in c.accelerations {
         let sampling = SamplingSpec::new(pattern, r, c.acs_lines).expect("valid demo sampling");
-        v.push(RunRequest { method, sampling });
+        v.push(RunRequest::with_defaults(method, sampling));
     }
     v
 }

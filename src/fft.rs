@@ -121,3 +121,64 @@ fn shifted_fft(mut lane: ArrayViewMut1<Complex32>, fft: &dyn Fft<f32>, s: &mut F
         *out = s.line[(i + half_up) % n] * scale;
     }
 }
+
+/// Orthonormal 1-D FFT along the frame axis of `[frame, row, col]` arrays: the temporal
+/// Fourier (x-f) transform. Not shifted: frequency 0 is index 0. Scaled by `1/sqrt(frames)`.
+#[derive(Clone)]
+pub struct TemporalFft {
+    frames: usize,
+    fwd: Arc<dyn Fft<f32>>,
+    inv: Arc<dyn Fft<f32>>,
+}
+
+impl TemporalFft {
+    /// Plans transforms over `frames` frames.
+    ///
+    /// # Panics
+    /// If `frames` is zero.
+    pub fn new(frames: usize) -> Self {
+        assert!(frames > 0, "temporal FFT needs at least one frame");
+        let mut planner = FftPlanner::<f32>::new();
+        TemporalFft {
+            frames,
+            fwd: planner.plan_fft_forward(frames),
+            inv: planner.plan_fft_inverse(frames),
+        }
+    }
+
+    /// Transforms every pixel's time course of `[frame, row, col]` data in place.
+    ///
+    /// # Panics
+    /// If the frame axis does not match the planned length.
+    pub fn process(&self, mut data: ArrayViewMut3<Complex32>, dir: Direction) {
+        assert_eq!(
+            data.dim().0,
+            self.frames,
+            "temporal FFT planned for {} frames, data has {}",
+            self.frames,
+            data.dim().0
+        );
+        let fft = match dir {
+            Direction::Forward => &self.fwd,
+            Direction::Inverse => &self.inv,
+        };
+        let scale = 1.0 / (self.frames as f32).sqrt();
+        data.axis_iter_mut(Axis(1)).into_par_iter().for_each_init(
+            FftScratch::default,
+            |s, mut rows| {
+                for mut lane in rows.lanes_mut(Axis(0)) {
+                    s.line.clear();
+                    s.line.extend(lane.iter().copied());
+                    let need = fft.get_inplace_scratch_len();
+                    if s.fft.len() < need {
+                        s.fft.resize(need, Complex32::default());
+                    }
+                    fft.process_with_scratch(&mut s.line, &mut s.fft[..need]);
+                    lane.iter_mut()
+                        .zip(&s.line)
+                        .for_each(|(o, v)| *o = *v * scale);
+                }
+            },
+        );
+    }
+}

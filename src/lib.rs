@@ -33,6 +33,7 @@ pub mod pipeline;
 pub mod recon;
 pub mod report;
 pub mod results;
+pub mod rng;
 pub mod sampling;
 pub mod segment;
 pub mod simulate;

@@ -2,32 +2,61 @@
 //! result row. Stages are called in this order only.
 
 use ndarray::{s, Array4, ArrayView4};
+use num_complex::Complex32;
 use sha2::{Digest, Sha256};
 
 use crate::fft::CenteredFft2;
 use crate::geometry::Geometry;
 use crate::measure::{self, MeasureError, PhaseChoice, Volumetry};
 use crate::phantom::Phantom;
-use crate::recon::{ReconInput, ReconPlan, Reconstructor};
+use crate::recon::{self, Params, ReconInput, ReconPlan, Reconstructor};
 use crate::results::{RunRow, RunStatus, Truth};
 use crate::sampling::{SamplingError, SamplingSpec};
 use crate::segment::{self, Seed, SegmentError, SegmentParams, Segmentation};
 
 /// One reconstruction to run on every slice of a subject.
-#[derive(Clone, Copy)]
+#[derive(Clone)]
 pub struct RunRequest {
     /// Method.
     pub method: &'static dyn Reconstructor,
     /// Sampling.
     pub sampling: SamplingSpec,
+    /// Method parameters (checked).
+    pub params: Params,
 }
 
-/// A reconstructed stack or why it failed, with its plan.
+impl RunRequest {
+    /// A request with the method's default parameters.
+    pub fn with_defaults(method: &'static dyn Reconstructor, sampling: SamplingSpec) -> Self {
+        RunRequest {
+            method,
+            sampling,
+            params: Params::defaults(method),
+        }
+    }
+}
+
+/// What one slice's reconstruction did (for `recon.json`).
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct SliceLog {
+    /// Slice index.
+    pub slice: usize,
+    /// Iterations run.
+    pub iterations: usize,
+    /// Relative residual or change after each iteration.
+    pub residuals: Vec<f64>,
+    /// Wall time in milliseconds (kept out of results files, which must be byte-identical).
+    pub runtime_ms: f64,
+}
+
+/// A reconstructed stack or why it failed, with its plan and per-slice log.
 pub struct Reconstructed {
     /// What was run.
     pub plan: ReconPlan,
     /// `[slice, frame, row, col]` magnitude, or the error text.
     pub stack: Result<Array4<f32>, String>,
+    /// One entry per reconstructed slice.
+    pub log: Vec<SliceLog>,
 }
 
 /// Failure of segmentation or measurement of one series.
@@ -41,18 +70,19 @@ pub enum SeriesError {
     Measure(#[from] MeasureError),
 }
 
-/// Renders and acquires the phantom slice by slice and runs every request on each slice,
-/// so only one slice of k-space is in memory at a time. A method failing on a slice fails
-/// that run only.
+/// Runs every request on every slice; `source(k)` gives slice `k`'s fully sampled k-space
+/// `[coil, frame, ky, kx]`, so only one slice is in memory at a time. A method failing on
+/// a slice fails that run only; a slice that cannot be read fails every run.
 ///
 /// # Errors
-/// A sampling request that does not fit the phantom's matrix.
-pub fn reconstruct_phantom(
-    ph: &Phantom,
+/// A sampling request that does not fit the matrix.
+pub fn reconstruct_slices(
+    dims: (usize, usize, usize, usize),
+    source: &mut dyn FnMut(usize) -> Result<Array4<Complex32>, String>,
     runs: &[RunRequest],
+    progress: &dyn Fn(usize, usize),
 ) -> Result<Vec<Reconstructed>, SamplingError> {
-    let spec = ph.spec();
-    let (ns, nf, nr, nc) = (spec.slices, spec.frames, spec.rows, spec.cols);
+    let (ns, nf, nr, nc) = dims;
     let fft = CenteredFft2::new(nr, nc);
     let masks = runs
         .iter()
@@ -69,11 +99,19 @@ pub fn reconstruct_phantom(
                 accel_effective: mask.accel_effective(),
             },
             stack: Ok(Array4::zeros((ns, nf, nr, nc))),
+            log: Vec::new(),
         })
         .collect();
     for k in 0..ns {
-        let (image, _) = ph.render_slice(k);
-        let full = ph.slice_kspace(k, &image);
+        progress(k, ns);
+        let full = match source(k) {
+            Ok(f) => f,
+            Err(e) => {
+                out.iter_mut()
+                    .for_each(|r| r.stack = Err(format!("slice {k}: {e}")));
+                break;
+            }
+        };
         for ((req, mask), rec) in runs.iter().zip(&masks).zip(out.iter_mut()) {
             let Ok(stack) = rec.stack.as_mut() else {
                 continue;
@@ -84,14 +122,46 @@ pub fn reconstruct_phantom(
                 kspace: kspace.view(),
                 mask,
                 fft: &fft,
+                sens: None,
             };
-            match req.method.reconstruct(&input) {
-                Ok(o) => stack.slice_mut(s![k, .., .., ..]).assign(&o.images),
+            let started = std::time::Instant::now();
+            match recon::run(req.method, &input, &req.params) {
+                Ok(o) => {
+                    stack.slice_mut(s![k, .., .., ..]).assign(&o.images);
+                    rec.log.push(SliceLog {
+                        slice: k,
+                        iterations: o.iterations,
+                        residuals: o.residuals,
+                        runtime_ms: started.elapsed().as_secs_f64() * 1000.0,
+                    });
+                }
                 Err(e) => rec.stack = Err(format!("slice {k}: {e}")),
             }
         }
     }
+    progress(ns, ns);
     Ok(out)
+}
+
+/// Renders and acquires the phantom slice by slice and runs every request on each slice.
+///
+/// # Errors
+/// A sampling request that does not fit the phantom's matrix.
+pub fn reconstruct_phantom(
+    ph: &Phantom,
+    runs: &[RunRequest],
+) -> Result<Vec<Reconstructed>, SamplingError> {
+    let spec = ph.spec();
+    let dims = (spec.slices, spec.frames, spec.rows, spec.cols);
+    reconstruct_slices(
+        dims,
+        &mut |k| {
+            let (image, _) = ph.render_slice(k);
+            Ok(ph.slice_kspace(k, &image))
+        },
+        runs,
+        &|_, _| {},
+    )
 }
 
 /// Segments and measures one image series with the given seeds.

@@ -17,7 +17,7 @@ use crate::fft::CenteredFft2;
 use crate::io::{self, npy, write_atomic, IoError};
 use crate::phantom::{Phantom, PhantomSpec};
 use crate::pipeline;
-use crate::recon::{self, ReconInput};
+use crate::recon::{self, Params, ReconInput};
 use crate::results::Truth;
 use crate::sampling::SamplingSpec;
 use crate::segment::seeds::seeds_to_toml;
@@ -59,13 +59,14 @@ pub fn write_study(
         let (image, _) = ph.render_slice(k);
         let kspace = ph.slice_kspace(k, &image);
         npy::write_kspace_slice(&kdir, k, kspace.view())?;
-        let out = reference
-            .reconstruct(&ReconInput {
-                kspace: kspace.view(),
-                mask: &mask,
-                fft: &fft,
-            })
-            .expect("reference accepts a full mask");
+        let input = ReconInput {
+            kspace: kspace.view(),
+            mask: &mask,
+            fft: &fft,
+            sens: None,
+        };
+        let out = recon::run(reference, &input, &Params::defaults(reference))
+            .expect("reference accepts a full mask of finite data");
         stack.slice_mut(s![k, .., .., ..]).assign(&out.images);
     }
     progress(spec.slices, spec.slices);

@@ -24,10 +24,10 @@ fn dice(a: impl Iterator<Item = (bool, bool)>) -> f64 {
 
 #[test]
 fn fully_sampled_demo_subjects_match_truth() {
-    let run = [RunRequest {
-        method: recon::by_id("reference").unwrap(),
-        sampling: SamplingSpec::full(),
-    }];
+    let run = [RunRequest::with_defaults(
+        recon::by_id("reference").unwrap(),
+        SamplingSpec::full(),
+    )];
     let params = SegmentParams::default();
     for subject in demo::subjects(1) {
         assert!(subject.spec.snr >= 20.0, "the check is stated for SNR ≥ 20");

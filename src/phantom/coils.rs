@@ -8,8 +8,6 @@
 
 use ndarray::{Array3, Array4, Axis};
 use num_complex::Complex32;
-use rand::rngs::Xoshiro256PlusPlus;
-use rand::SeedableRng;
 use rand_distr::{Distribution, Normal};
 
 use super::render::signal;
@@ -52,14 +50,6 @@ fn object_phase(x: f64, y: f64) -> f64 {
     0.004 * x - 0.003 * y + 2.0e-5 * (x * x - y * y)
 }
 
-/// Mixes the study seed with a slice index into an independent stream seed (SplitMix64 step).
-pub fn stream_seed(rng_seed: u64, stream: u64) -> u64 {
-    let mut z = rng_seed ^ stream.wrapping_mul(0x9E37_79B9_7F4A_7C15);
-    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-    z ^ (z >> 31)
-}
-
 /// Multi-coil k-space `[coil, frame, ky, kx]` of one rendered slice, with complex Gaussian noise.
 pub fn acquire(ph: &Phantom, slice: usize, image: &Array3<f32>) -> Array4<Complex32> {
     let spec = ph.spec();
@@ -90,7 +80,7 @@ pub fn acquire(ph: &Phantom, slice: usize, image: &Array3<f32>) -> Array4<Comple
     }
     let sigma = f64::from(signal::LV_BLOOD) / spec.snr;
     let normal = Normal::new(0.0, sigma / std::f64::consts::SQRT_2).expect("sigma is positive");
-    let mut rng = Xoshiro256PlusPlus::seed_from_u64(stream_seed(spec.rng_seed, slice as u64));
+    let mut rng = crate::rng::stream(spec.rng_seed, slice as u64);
     for z in k.iter_mut() {
         let re = normal.sample(&mut rng) as f32;
         let im = normal.sample(&mut rng) as f32;

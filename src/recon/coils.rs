@@ -3,7 +3,9 @@
 
 use ndarray::{s, Array3, Array4, ArrayView3, ArrayView4, Axis};
 use num_complex::Complex32;
+use rayon::prelude::*;
 
+use super::{ReconError, ReconInput};
 use crate::fft::{CenteredFft2, Direction};
 
 /// Root-sum-of-squares combination of coil images `[coil, frame, row, col]`:
@@ -42,11 +44,9 @@ pub fn sensitivity_weighted(
     })
 }
 
-/// Estimates coil sensitivities `[coil, row, col]` from the calibration block `[lo, hi)` of
-/// ky lines, averaged over frames: a Hann-windowed low-resolution coil image divided by
-/// the root-sum-of-squares of all coils (the ratio method of Pruessmann et al. 1999).
-/// The result satisfies `Σ_c |S_c|² = 1` wherever any coil sees signal.
-pub fn estimate_from_calibration(
+/// Low-resolution coil images `[coil, row, col]` from the calibration block `[lo, hi)` of
+/// ky lines, averaged over frames, with a Hann window across the block to limit ringing.
+pub fn calibration_images(
     kspace: ArrayView4<Complex32>,
     block: (usize, usize),
     fft: &CenteredFft2,
@@ -57,9 +57,11 @@ pub fn estimate_from_calibration(
     let mut low = Array3::<Complex32>::zeros((nc, nr, ncol));
     for c in 0..nc {
         for ky in lo..hi {
-            // Hann window across the calibration block limits ringing of the low-res image.
-            let w = 0.5 - 0.5 * (std::f32::consts::TAU * (ky - lo) as f32 / width).cos();
-            let w = if hi - lo <= 2 { 1.0 } else { w.max(0.0) };
+            let w = if hi - lo <= 2 {
+                1.0
+            } else {
+                (0.5 - 0.5 * (std::f32::consts::TAU * (ky - lo) as f32 / width).cos()).max(0.0)
+            };
             let mut line = low.slice_mut(s![c, ky, ..]);
             for f in 0..nf {
                 line.zip_mut_with(&kspace.slice(s![c, f, ky, ..]), |a, b| {
@@ -68,7 +70,18 @@ pub fn estimate_from_calibration(
             }
         }
     }
-    let mut low = fft.apply(low, Direction::Inverse);
+    fft.apply(low, Direction::Inverse)
+}
+
+/// Estimates coil sensitivities by the ratio method (Pruessmann et al. 1999): each
+/// low-resolution coil image divided by the root-sum-of-squares of all coils, so
+/// `Σ_c |S_c|² = 1` wherever any coil sees signal.
+pub fn estimate_from_calibration(
+    kspace: ArrayView4<Complex32>,
+    block: (usize, usize),
+    fft: &CenteredFft2,
+) -> Array3<Complex32> {
+    let mut low = calibration_images(kspace, block, fft);
     let norm = low.map_axis(Axis(0), |v| {
         v.iter().map(|z| z.norm_sqr()).sum::<f32>().sqrt()
     });
@@ -85,6 +98,88 @@ pub fn estimate_from_calibration(
     low
 }
 
+/// Adaptive coil sensitivities (Walsh, Gmitro & Marcellin 2000): at each pixel, the
+/// dominant eigenvector of the coil correlation matrix summed over a `(2·half+1)²` window of
+/// the low-resolution calibration images, phase-referenced to the strongest coil. Pixels
+/// whose low-resolution root-sum-of-squares is below `mask_fraction` of its maximum are
+/// outside the object and get zero sensitivity. Inside, `Σ_c |S_c|² = 1`.
+pub fn estimate_walsh(
+    kspace: ArrayView4<Complex32>,
+    block: (usize, usize),
+    fft: &CenteredFft2,
+    half: usize,
+    mask_fraction: f32,
+) -> Array3<Complex32> {
+    let low = calibration_images(kspace, block, fft);
+    let (nc, nr, ncol) = low.dim();
+    let rss = low.map_axis(Axis(0), |v| {
+        v.iter().map(|z| z.norm_sqr()).sum::<f32>().sqrt()
+    });
+    let peak = rss.iter().cloned().fold(0.0f32, f32::max);
+    let energy: Vec<f32> = (0..nc)
+        .map(|c| {
+            low.index_axis(Axis(0), c)
+                .iter()
+                .map(|z| z.norm_sqr())
+                .sum()
+        })
+        .collect();
+    let reference = (0..nc).fold(0, |b, c| if energy[c] > energy[b] { c } else { b });
+    let mut out = Array3::<Complex32>::zeros((nc, nr, ncol));
+    let rows: Vec<Vec<Complex32>> = (0..nr)
+        .into_par_iter()
+        .map(|r| {
+            let mut row = vec![Complex32::default(); nc * ncol];
+            let mut corr = vec![Complex32::default(); nc * nc];
+            let mut v = vec![Complex32::default(); nc];
+            let mut w = vec![Complex32::default(); nc];
+            for c in 0..ncol {
+                if rss[(r, c)] <= mask_fraction * peak {
+                    continue;
+                }
+                corr.iter_mut().for_each(|z| *z = Complex32::default());
+                for rr in r.saturating_sub(half)..(r + half + 1).min(nr) {
+                    for cc in c.saturating_sub(half)..(c + half + 1).min(ncol) {
+                        for i in 0..nc {
+                            let a = low[(i, rr, cc)];
+                            for j in 0..nc {
+                                corr[i * nc + j] += a * low[(j, rr, cc)].conj();
+                            }
+                        }
+                    }
+                }
+                // Power iteration from the pixel's own coil vector.
+                for i in 0..nc {
+                    v[i] = low[(i, r, c)];
+                }
+                for _ in 0..12 {
+                    for i in 0..nc {
+                        w[i] = (0..nc).map(|j| corr[i * nc + j] * v[j]).sum();
+                    }
+                    let n = w.iter().map(|z| z.norm_sqr()).sum::<f32>().sqrt();
+                    if n <= f32::MIN_POSITIVE {
+                        break;
+                    }
+                    v.iter_mut().zip(&w).for_each(|(a, b)| *a = *b / n);
+                }
+                let phase = v[reference].conj() / v[reference].norm().max(f32::MIN_POSITIVE);
+                for i in 0..nc {
+                    row[i * ncol + c] = v[i] * phase;
+                }
+            }
+            row
+        })
+        .collect();
+    for (r, row) in rows.into_iter().enumerate() {
+        for i in 0..nc {
+            for c in 0..ncol {
+                out[(i, r, c)] = row[i * ncol + c];
+            }
+        }
+    }
+    out
+}
+
 /// Inverse-FFTs every coil and frame of `[coil, frame, ky, kx]` k-space into coil images.
 pub fn coil_images(kspace: ArrayView4<Complex32>, fft: &CenteredFft2) -> Array4<Complex32> {
     let mut img = kspace.to_owned();
@@ -95,4 +190,35 @@ pub fn coil_images(kspace: ArrayView4<Complex32>, fft: &CenteredFft2) -> Array4<
         .expect("owned array is standard layout");
     fft.process_batch(flat, Direction::Inverse);
     img
+}
+
+/// Half-width of the Walsh window (5 × 5 pixels).
+pub const WALSH_HALF_WINDOW: usize = 2;
+/// Object mask of the Walsh maps: low-resolution RSS above 3 % of its maximum.
+pub const WALSH_MASK_FRACTION: f32 = 0.03;
+
+/// The sensitivities a method should use: those given with the input, otherwise Walsh maps
+/// from the calibration block.
+///
+/// # Errors
+/// [`ReconError::Sampling`] when no calibration block is acquired in every frame.
+pub fn for_input(
+    input: &ReconInput,
+    method: &'static str,
+) -> Result<Array3<Complex32>, ReconError> {
+    if let Some(s) = &input.sens {
+        return Ok(s.to_owned());
+    }
+    let block = input.mask.calibration_block().ok_or_else(|| ReconError::Sampling {
+        method,
+        why: "no fully sampled calibration block around the k-space centre to estimate coil sensitivities"
+            .into(),
+    })?;
+    Ok(estimate_walsh(
+        input.kspace,
+        block,
+        input.fft,
+        WALSH_HALF_WINDOW,
+        WALSH_MASK_FRACTION,
+    ))
 }

@@ -1,7 +1,7 @@
 //! `reference`: the fully sampled reconstruction (inverse FFT, root-sum-of-squares).
 
 use super::coils::{coil_images, rss};
-use super::{ReconError, ReconInput, ReconOutput, Reconstructor};
+use super::{ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor};
 
 /// Fully sampled reference: per-coil inverse FFT and root-sum-of-squares combination.
 pub struct Reference;
@@ -15,7 +15,11 @@ impl Reconstructor for Reference {
         "fully sampled: inverse FFT of each coil, root-sum-of-squares combination (Roemer 1990)"
     }
 
-    fn reconstruct(&self, input: &ReconInput) -> Result<ReconOutput, ReconError> {
+    fn params(&self) -> &'static [ParamSpec] {
+        &[]
+    }
+
+    fn reconstruct(&self, input: &ReconInput, _: &Params) -> Result<ReconOutput, ReconError> {
         if !input.mask.is_full() {
             return Err(ReconError::Sampling {
                 method: self.id(),
@@ -29,6 +33,7 @@ impl Reconstructor for Reference {
         Ok(ReconOutput {
             images: rss(img.view()),
             iterations: 0,
+            residuals: vec![],
         })
     }
 }

@@ -3,7 +3,7 @@
 use ndarray::Axis;
 
 use super::coils::{coil_images, estimate_from_calibration, sensitivity_weighted};
-use super::{ReconError, ReconInput, ReconOutput, Reconstructor};
+use super::{ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor};
 
 /// Zero-filled reconstruction: each acquired line is divided by its local sampling density
 /// (so image intensity is preserved), then inverse FFT and sensitivity-weighted coil
@@ -20,7 +20,11 @@ impl Reconstructor for ZeroFilled {
         "density-compensated zero-filled inverse FFT, sensitivity-weighted coil combination"
     }
 
-    fn reconstruct(&self, input: &ReconInput) -> Result<ReconOutput, ReconError> {
+    fn params(&self) -> &'static [ParamSpec] {
+        &[]
+    }
+
+    fn reconstruct(&self, input: &ReconInput, _: &Params) -> Result<ReconOutput, ReconError> {
         let block = input
             .mask
             .calibration_block()
@@ -31,17 +35,19 @@ impl Reconstructor for ZeroFilled {
         let sens = estimate_from_calibration(input.kspace, block, input.fft);
         let density = input.mask.density();
         let mut k = input.kspace.to_owned();
-        for mut coil in k.axis_iter_mut(Axis(0)) {
-            for ((f, ky), d) in density.indexed_iter() {
-                coil.slice_mut(ndarray::s![f, ky, ..])
-                    .mapv_inplace(|z| z / *d);
-            }
+        for mut ky_lane in k.lanes_mut(Axis(2)) {
+            // Each lane runs along ky: divide every line by its density.
+            ky_lane
+                .iter_mut()
+                .zip(density.iter())
+                .for_each(|(z, d)| *z /= *d);
         }
         let img = coil_images(k.view(), input.fft);
         let combined = sensitivity_weighted(img.view(), sens.view());
         Ok(ReconOutput {
             images: combined.mapv(|z| z.norm()),
             iterations: 0,
+            residuals: vec![],
         })
     }
 }

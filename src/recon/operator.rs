@@ -1,0 +1,194 @@
+//! The multi-coil undersampled Fourier (SENSE encoding) operator and its adjoint.
+//!
+//! ```text
+//! E x   : y[c, f] = M_f ⊙ F( S_c ⊙ x[f] )                 x: [frame, row, col]
+//! Eᴴ y  : x[f]    = Σ_c conj(S_c) ⊙ Fᴴ( M_f ⊙ y[c, f] )    y: [coil, frame, ky, kx]
+//! ```
+//! `F` is the centred orthonormal 2-D FFT and `M_f` keeps the lines acquired in frame `f`.
+//! With sensitivities normalised to `Σ_c |S_c|² ≤ 1`, `‖EᴴE‖ ≤ 1`, so gradient methods
+//! can take unit steps.
+
+use ndarray::{Array2, Array3, Array4, ArrayView3, ArrayView4, ArrayViewMut3, Axis, Zip};
+use num_complex::Complex32;
+use rayon::prelude::*;
+
+use super::ReconError;
+use crate::fft::{CenteredFft2, Direction, FftScratch};
+
+/// Scratch of the operator: one `[coil, frame, ky, kx]` buffer, reused across iterations.
+pub struct Workspace {
+    coil: Array4<Complex32>,
+}
+
+impl Workspace {
+    /// Scratch for `coils × frames × rows × cols`.
+    pub fn new(coils: usize, frames: usize, rows: usize, cols: usize) -> Self {
+        Workspace {
+            coil: Array4::zeros((coils, frames, rows, cols)),
+        }
+    }
+}
+
+/// The encoding operator of one slice.
+pub struct Encoding<'a> {
+    sens: ArrayView3<'a, Complex32>,
+    mask: &'a Array2<bool>,
+    fft: &'a CenteredFft2,
+}
+
+impl<'a> Encoding<'a> {
+    /// Builds the operator from sensitivities `[coil, row, col]`, the `[frame, ky]` mask
+    /// and a planned FFT.
+    ///
+    /// # Errors
+    /// [`ReconError::Shape`] when sensitivities, mask and FFT disagree.
+    pub fn new(
+        sens: ArrayView3<'a, Complex32>,
+        mask: &'a Array2<bool>,
+        fft: &'a CenteredFft2,
+    ) -> Result<Self, ReconError> {
+        let (_, r, c) = sens.dim();
+        if (r, c) != fft.shape() || mask.ncols() != r {
+            return Err(ReconError::Shape {
+                what: "coil sensitivities",
+                expected: format!(
+                    "[coil, {}, {}] with a mask of {} lines",
+                    fft.shape().0,
+                    fft.shape().1,
+                    fft.shape().0
+                ),
+                found: format!("{:?} with a mask of {} lines", sens.dim(), mask.ncols()),
+            });
+        }
+        Ok(Encoding { sens, mask, fft })
+    }
+
+    /// Coils, frames, rows, cols.
+    pub fn dims(&self) -> (usize, usize, usize, usize) {
+        let (nc, r, c) = self.sens.dim();
+        (nc, self.mask.nrows(), r, c)
+    }
+
+    /// A workspace of the right size.
+    pub fn workspace(&self) -> Workspace {
+        let (nc, nf, r, c) = self.dims();
+        Workspace::new(nc, nf, r, c)
+    }
+
+    /// `y = E x` into the workspace buffer, returned as a view.
+    pub fn forward_into<'w>(
+        &self,
+        x: ArrayView3<Complex32>,
+        ws: &'w mut Workspace,
+    ) -> ArrayView4<'w, Complex32> {
+        let (nc, nf, r, c) = self.dims();
+        let mut flat = ws
+            .coil
+            .view_mut()
+            .into_shape_with_order((nc * nf, r, c))
+            .expect("standard layout");
+        flat.axis_iter_mut(Axis(0))
+            .into_par_iter()
+            .enumerate()
+            .for_each_init(FftScratch::default, |s, (i, mut plane)| {
+                let (coil, f) = (i / nf, i % nf);
+                Zip::from(&mut plane)
+                    .and(self.sens.index_axis(Axis(0), coil))
+                    .and(x.index_axis(Axis(0), f))
+                    .for_each(|o, s, v| *o = *s * *v);
+                self.fft.process(plane.view_mut(), Direction::Forward, s);
+                for (ky, mut line) in plane.outer_iter_mut().enumerate() {
+                    if !self.mask[(f, ky)] {
+                        line.fill(Complex32::default());
+                    }
+                }
+            });
+        ws.coil.view()
+    }
+
+    /// `y = E x` as a new array.
+    pub fn forward(&self, x: ArrayView3<Complex32>, ws: &mut Workspace) -> Array4<Complex32> {
+        self.forward_into(x, ws).to_owned()
+    }
+
+    /// `x = Eᴴ y`.
+    pub fn adjoint(
+        &self,
+        y: ArrayView4<Complex32>,
+        x: ArrayViewMut3<Complex32>,
+        ws: &mut Workspace,
+    ) {
+        ws.coil.assign(&y);
+        self.adjoint_in_place(x, ws);
+    }
+
+    /// `out = EᴴE x` (the normal operator), without allocating.
+    pub fn normal(
+        &self,
+        x: ArrayView3<Complex32>,
+        out: ArrayViewMut3<Complex32>,
+        ws: &mut Workspace,
+    ) {
+        self.forward_into(x, ws);
+        self.adjoint_in_place(out, ws);
+    }
+
+    /// Applies `Eᴴ` to the k-space held in the workspace.
+    fn adjoint_in_place(&self, mut x: ArrayViewMut3<Complex32>, ws: &mut Workspace) {
+        let (nc, nf, r, c) = self.dims();
+        {
+            let mut flat = ws
+                .coil
+                .view_mut()
+                .into_shape_with_order((nc * nf, r, c))
+                .expect("standard layout");
+            flat.axis_iter_mut(Axis(0))
+                .into_par_iter()
+                .enumerate()
+                .for_each_init(FftScratch::default, |s, (i, mut plane)| {
+                    let f = i % nf;
+                    for (ky, mut line) in plane.outer_iter_mut().enumerate() {
+                        if !self.mask[(f, ky)] {
+                            line.fill(Complex32::default());
+                        }
+                    }
+                    self.fft.process(plane.view_mut(), Direction::Inverse, s);
+                });
+        }
+        let coil = &ws.coil;
+        x.axis_iter_mut(Axis(0))
+            .into_par_iter()
+            .enumerate()
+            .for_each(|(f, mut xf)| {
+                xf.fill(Complex32::default());
+                for ci in 0..nc {
+                    Zip::from(&mut xf)
+                        .and(self.sens.index_axis(Axis(0), ci))
+                        .and(coil.index_axis(Axis(0), ci).index_axis(Axis(0), f))
+                        .for_each(|o, s, v| *o += s.conj() * *v);
+                }
+            });
+    }
+}
+
+/// `Σ conj(a)·b` in f64 (inner product of two complex arrays of the same shape).
+pub fn dot(
+    a: impl IntoIterator<Item = Complex32>,
+    b: impl IntoIterator<Item = Complex32>,
+) -> num_complex::Complex64 {
+    a.into_iter()
+        .zip(b)
+        .map(|(x, y)| {
+            let (x, y) = (
+                num_complex::Complex64::new(x.re.into(), x.im.into()),
+                num_complex::Complex64::new(y.re.into(), y.im.into()),
+            );
+            x.conj() * y
+        })
+        .sum()
+}
+
+/// `‖a‖²` in f64.
+pub fn norm_sqr(a: &Array3<Complex32>) -> f64 {
+    a.iter().map(|z| f64::from(z.norm_sqr())).sum()
+}
