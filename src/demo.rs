@@ -1,12 +1,13 @@
 //! The built-in demo study, read from `demo-studies/tidewater.toml` (embedded at build time):
 //! an invented scenario with three synthetic subjects of normal, mildly reduced and
-//! severely reduced EF, each reconstructed fully sampled and zero-filled at R = 2 and 4.
+//! severely reduced EF, each reconstructed fully sampled and by several methods at R = 4, 8
+//! and 12.
 
 use serde::Deserialize;
 
 use crate::phantom::{Phantom, PhantomSpec};
-use crate::pipeline::{self, RunRequest};
-use crate::recon;
+use crate::pipeline::{self, CoilPrep, RunRequest};
+use crate::recon::{self, Params};
 use crate::results::{InputHash, ResultsFile, RunRow};
 use crate::sampling::{Pattern, SamplingSpec};
 use crate::segment::SegmentParams;
@@ -39,10 +40,13 @@ struct Acquisition {
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct Comparison {
-    method: String,
+    methods: Vec<String>,
     pattern: String,
     accelerations: Vec<f64>,
     acs_lines: usize,
+    virtual_coils: usize,
+    #[serde(default)]
+    parameters: std::collections::BTreeMap<String, std::collections::BTreeMap<String, f64>>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -105,23 +109,44 @@ pub fn subjects(rng_seed: u64) -> Vec<DemoSubject> {
         .collect()
 }
 
-/// The runs of the demo: the fully sampled reference, then the compared method at each R.
-pub fn runs() -> Vec<RunRequest> {
+/// The runs of the demo: the fully sampled reference, then every method at every R, all
+/// methods at one R on the same lines; `rng_seed` sets the pseudo-random lines.
+pub fn runs(rng_seed: u64) -> Vec<RunRequest> {
     let c = demo_file().comparison;
-    let pattern = match c.pattern.as_str() {
-        "equispaced" => Pattern::Equispaced,
-        other => panic!("embedded demo names pattern `{other}`, which the demo does not run"),
-    };
-    let method = recon::by_id(&c.method).expect("embedded demo names a registered method");
+    let pattern = Pattern::from_id(&c.pattern).expect("embedded demo names a known pattern");
     let mut v = vec![RunRequest::with_defaults(
         recon::by_id("reference").expect("registered"),
         SamplingSpec::full(),
     )];
     for r in c.accelerations {
-        let sampling = SamplingSpec::new(pattern, r, c.acs_lines).expect("valid demo sampling");
-        v.push(RunRequest::with_defaults(method, sampling));
+        let sampling = SamplingSpec::new(pattern, r, c.acs_lines)
+            .expect("valid demo sampling")
+            .with_rng_seed(rng_seed);
+        for m in &c.methods {
+            let method = recon::by_id(m).expect("embedded demo names registered methods");
+            let given: Vec<(String, String)> = c
+                .parameters
+                .get(m)
+                .map(|t| t.iter().map(|(k, v)| (k.clone(), v.to_string())).collect())
+                .unwrap_or_default();
+            let params =
+                Params::resolve(method, &given).expect("embedded demo parameters are valid");
+            v.push(RunRequest {
+                method,
+                sampling,
+                params,
+            });
+        }
     }
     v
+}
+
+/// Coil processing of the demo (compression before the accelerated reconstructions).
+pub fn coil_prep() -> CoilPrep {
+    CoilPrep {
+        whitening: None,
+        virtual_coils: demo_file().comparison.virtual_coils,
+    }
 }
 
 /// Runs the whole chain on one synthetic subject and returns its result rows.
@@ -132,13 +157,14 @@ pub fn run_subject(
     code: &str,
     spec: &PhantomSpec,
     runs: &[RunRequest],
+    prep: &CoilPrep,
     params: &SegmentParams,
 ) -> Result<Vec<RunRow>, anyhow::Error> {
     let ph = Phantom::new(spec.clone())?;
     let seeds = [pipeline::phantom_seed(&ph)];
     let geom = ph.geometry();
     let truth = pipeline::phantom_truth(&ph);
-    let recs = pipeline::reconstruct_phantom(&ph, runs)?;
+    let recs = pipeline::reconstruct_phantom(&ph, runs, prep)?;
     Ok(recs
         .into_iter()
         .map(|rec| {
@@ -160,7 +186,8 @@ pub fn run(
     progress: &dyn Fn(usize, usize, &str),
 ) -> Result<ResultsFile, anyhow::Error> {
     let subjects = subjects(rng_seed);
-    let runs = runs();
+    let runs = runs(rng_seed);
+    let prep = coil_prep();
     let params = SegmentParams::default();
     let mut rows = Vec::new();
     let mut inputs = Vec::new();
@@ -170,7 +197,7 @@ pub fn run(
             label: format!("{} (synthetic phantom parameters)", s.code),
             sha256: pipeline::sha256_of(&s.spec),
         });
-        rows.extend(run_subject(&s.code, &s.spec, &runs, &params)?);
+        rows.extend(run_subject(&s.code, &s.spec, &runs, &prep, &params)?);
     }
     progress(subjects.len(), subjects.len(), "done");
     Ok(ResultsFile::new(&study(), inputs, rows))

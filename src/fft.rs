@@ -6,7 +6,7 @@
 
 use std::sync::Arc;
 
-use ndarray::{Array3, ArrayViewMut1, ArrayViewMut2, ArrayViewMut3, Axis};
+use ndarray::{Array3, ArrayViewMut2, ArrayViewMut3, Axis};
 use num_complex::Complex32;
 use rayon::prelude::*;
 use rustfft::{Fft, FftPlanner};
@@ -36,6 +36,7 @@ pub struct CenteredFft2 {
 pub struct FftScratch {
     line: Vec<Complex32>,
     fft: Vec<Complex32>,
+    plane: Vec<Complex32>,
 }
 
 impl CenteredFft2 {
@@ -66,6 +67,10 @@ impl CenteredFft2 {
 
     /// Transforms one plane in place.
     ///
+    /// Rows are transformed all at once in a contiguous buffer (rustfft processes a buffer of
+    /// several transforms in one call), then the plane is transposed so the columns become
+    /// contiguous rows too. The shifts are rotations of each contiguous line.
+    ///
     /// # Panics
     /// If the plane is not `rows × cols`.
     pub fn process(&self, mut plane: ArrayViewMut2<Complex32>, dir: Direction, s: &mut FftScratch) {
@@ -80,11 +85,34 @@ impl CenteredFft2 {
             Direction::Forward => (&self.row_fwd, &self.col_fwd),
             Direction::Inverse => (&self.row_inv, &self.col_inv),
         };
-        for lane in plane.lanes_mut(Axis(1)) {
-            shifted_fft(lane, rf.as_ref(), s);
+        let (nr, nc) = (self.rows, self.cols);
+        let need = rf
+            .get_inplace_scratch_len()
+            .max(cf.get_inplace_scratch_len());
+        if s.fft.len() < need {
+            s.fft.resize(need, Complex32::default());
         }
-        for lane in plane.lanes_mut(Axis(0)) {
-            shifted_fft(lane, cf.as_ref(), s);
+        if s.plane.len() != nr * nc {
+            s.plane.resize(nr * nc, Complex32::default());
+        }
+        let scale = 1.0 / ((nr * nc) as f32).sqrt();
+        match plane.as_slice_mut() {
+            Some(data) => {
+                // Contiguous plane: rows in place, columns in the transposed scratch.
+                shifted_lines(data, nc, rf.as_ref(), &mut s.fft[..need]);
+                transpose(data, &mut s.plane, nr, nc, 1.0);
+                shifted_lines(&mut s.plane, nr, cf.as_ref(), &mut s.fft[..need]);
+                transpose(&s.plane, data, nc, nr, scale);
+            }
+            None => {
+                s.line.clear();
+                s.line.extend(plane.iter().copied());
+                shifted_lines(&mut s.line, nc, rf.as_ref(), &mut s.fft[..need]);
+                transpose(&s.line, &mut s.plane, nr, nc, 1.0);
+                shifted_lines(&mut s.plane, nr, cf.as_ref(), &mut s.fft[..need]);
+                transpose(&s.plane, &mut s.line, nc, nr, scale);
+                plane.iter_mut().zip(&s.line).for_each(|(o, v)| *o = *v);
+            }
         }
     }
 
@@ -102,23 +130,32 @@ impl CenteredFft2 {
     }
 }
 
-/// One centred, orthonormal 1-D transform of a (possibly strided) line, in place.
-fn shifted_fft(mut lane: ArrayViewMut1<Complex32>, fft: &dyn Fft<f32>, s: &mut FftScratch) {
-    let n = lane.len();
-    s.line.clear();
-    // ifftshift: buf[i] = x[(i + floor(n/2)) mod n]
-    let half_down = n / 2;
-    s.line.extend((0..n).map(|i| lane[(i + half_down) % n]));
-    let need = fft.get_inplace_scratch_len();
-    if s.fft.len() < need {
-        s.fft.resize(need, Complex32::default());
+/// Centred (unscaled) FFTs of consecutive lines of length `n` in `buf`: each line is
+/// rotated by `⌊n/2⌋` (ifftshift), all lines are transformed in one call, then each is
+/// rotated by `⌈n/2⌉` (fftshift).
+fn shifted_lines(buf: &mut [Complex32], n: usize, fft: &dyn Fft<f32>, scratch: &mut [Complex32]) {
+    for line in buf.chunks_exact_mut(n) {
+        line.rotate_left(n / 2);
     }
-    fft.process_with_scratch(&mut s.line, &mut s.fft[..need]);
-    // fftshift: y[i] = buf[(i + ceil(n/2)) mod n]
-    let half_up = n.div_ceil(2);
-    let scale = 1.0 / (n as f32).sqrt();
-    for (i, out) in lane.iter_mut().enumerate() {
-        *out = s.line[(i + half_up) % n] * scale;
+    fft.process_with_scratch(buf, scratch);
+    for line in buf.chunks_exact_mut(n) {
+        line.rotate_left(n.div_ceil(2));
+    }
+}
+
+/// `dst[c·rows + r] = scale·src[r·cols + c]`, in cache-friendly tiles.
+fn transpose(src: &[Complex32], dst: &mut [Complex32], rows: usize, cols: usize, scale: f32) {
+    const T: usize = 16;
+    debug_assert!(src.len() == rows * cols && dst.len() == rows * cols);
+    for r0 in (0..rows).step_by(T) {
+        for c0 in (0..cols).step_by(T) {
+            for r in r0..(r0 + T).min(rows) {
+                let row = &src[r * cols..(r + 1) * cols];
+                for c in c0..(c0 + T).min(cols) {
+                    dst[c * rows + r] = row[c] * scale;
+                }
+            }
+        }
     }
 }
 

@@ -3,6 +3,7 @@
 
 use ndarray::{s, Array4, ArrayView4};
 use num_complex::Complex32;
+use rayon::prelude::*;
 use sha2::{Digest, Sha256};
 
 use crate::fft::CenteredFft2;
@@ -70,6 +71,16 @@ pub enum SeriesError {
     Measure(#[from] MeasureError),
 }
 
+/// Coil processing before reconstruction.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct CoilPrep {
+    /// Noise pre-whitening matrix `[coil, coil]`, applied to every run.
+    pub whitening: Option<ndarray::Array2<Complex32>>,
+    /// Virtual coils after compression (0 = no compression). Applied to every run except
+    /// `reference`, which stays the uncompressed root-sum-of-squares of all coils.
+    pub virtual_coils: usize,
+}
+
 /// Runs every request on every slice; `source(k)` gives slice `k`'s fully sampled k-space
 /// `[coil, frame, ky, kx]`, so only one slice is in memory at a time. A method failing on
 /// a slice fails that run only; a slice that cannot be read fails every run.
@@ -80,6 +91,7 @@ pub fn reconstruct_slices(
     dims: (usize, usize, usize, usize),
     source: &mut dyn FnMut(usize) -> Result<Array4<Complex32>, String>,
     runs: &[RunRequest],
+    prep: &CoilPrep,
     progress: &dyn Fn(usize, usize),
 ) -> Result<Vec<Reconstructed>, SamplingError> {
     let (ns, nf, nr, nc) = dims;
@@ -105,39 +117,61 @@ pub fn reconstruct_slices(
     for k in 0..ns {
         progress(k, ns);
         let full = match source(k) {
-            Ok(f) => f,
+            Ok(f) => match &prep.whitening {
+                Some(w) => recon::coils::mix_coils(f.view(), w),
+                None => f,
+            },
             Err(e) => {
                 out.iter_mut()
                     .for_each(|r| r.stack = Err(format!("slice {k}: {e}")));
                 break;
             }
         };
-        for ((req, mask), rec) in runs.iter().zip(&masks).zip(out.iter_mut()) {
-            let Ok(stack) = rec.stack.as_mut() else {
-                continue;
-            };
-            let mut kspace = full.clone();
-            mask.apply(kspace.view_mut());
-            let input = ReconInput {
-                kspace: kspace.view(),
-                mask,
-                fft: &fft,
-                sens: None,
-            };
-            let started = std::time::Instant::now();
-            match recon::run(req.method, &input, &req.params) {
-                Ok(o) => {
-                    stack.slice_mut(s![k, .., .., ..]).assign(&o.images);
-                    rec.log.push(SliceLog {
-                        slice: k,
-                        iterations: o.iterations,
-                        residuals: o.residuals,
-                        runtime_ms: started.elapsed().as_secs_f64() * 1000.0,
-                    });
+        // The runs of one slice are independent: run them in parallel (each also
+        // parallelises its own FFT batches), then store the results in request order.
+        runs.par_iter()
+            .zip(masks.par_iter())
+            .zip(out.par_iter_mut())
+            .for_each(|((req, mask), rec)| {
+                let Ok(stack) = rec.stack.as_mut() else {
+                    return;
+                };
+                let mut kspace = full.clone();
+                mask.apply(kspace.view_mut());
+                if prep.virtual_coils > 0
+                    && prep.virtual_coils < kspace.dim().0
+                    && req.method.id() != "reference"
+                {
+                    if let Some(block) = mask.calibration_block() {
+                        let m = recon::coils::compression_matrix(
+                            kspace.view(),
+                            block,
+                            prep.virtual_coils,
+                            1.0,
+                        );
+                        kspace = recon::coils::mix_coils(kspace.view(), &m);
+                    }
                 }
-                Err(e) => rec.stack = Err(format!("slice {k}: {e}")),
-            }
-        }
+                let input = ReconInput {
+                    kspace: kspace.view(),
+                    mask,
+                    fft: &fft,
+                    sens: None,
+                };
+                let started = std::time::Instant::now();
+                match recon::run(req.method, &input, &req.params) {
+                    Ok(o) => {
+                        stack.slice_mut(s![k, .., .., ..]).assign(&o.images);
+                        rec.log.push(SliceLog {
+                            slice: k,
+                            iterations: o.iterations,
+                            residuals: o.residuals,
+                            runtime_ms: started.elapsed().as_secs_f64() * 1000.0,
+                        });
+                    }
+                    Err(e) => rec.stack = Err(format!("slice {k}: {e}")),
+                }
+            });
     }
     progress(ns, ns);
     Ok(out)
@@ -150,6 +184,7 @@ pub fn reconstruct_slices(
 pub fn reconstruct_phantom(
     ph: &Phantom,
     runs: &[RunRequest],
+    prep: &CoilPrep,
 ) -> Result<Vec<Reconstructed>, SamplingError> {
     let spec = ph.spec();
     let dims = (spec.slices, spec.frames, spec.rows, spec.cols);
@@ -160,6 +195,7 @@ pub fn reconstruct_phantom(
             Ok(ph.slice_kspace(k, &image))
         },
         runs,
+        prep,
         &|_, _| {},
     )
 }

@@ -20,7 +20,7 @@ fn text(o: &Output) -> String {
     )
 }
 
-/// A small synthetic study (fast): 10 slices of 96×96 at 2 mm, 20 frames, 4 coils.
+/// A small synthetic study (fast): 11 slices of 96×96 at 2 mm, 20 frames, 4 coils.
 fn simulate(dir: &Path) {
     let o = cinegauge(&[
         "simulate",
@@ -66,8 +66,8 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
     let runs = v["runs"].as_array().unwrap();
     assert_eq!(
         runs.len(),
-        9,
-        "3 subjects × (reference, zero-filled R=2, R=4)"
+        39,
+        "3 subjects × (reference + 4 methods × R = 4, 8, 12)"
     );
     let mut references = 0;
     for r in runs.iter().filter(|r| r["method"] == "reference") {
@@ -94,35 +94,176 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
         assert_eq!(r["pattern"], "full");
     }
     assert_eq!(references, 3);
-    for r in runs.iter().filter(|r| r["method"] == "zero-filled") {
+    for r in runs.iter().filter(|r| r["method"] != "reference") {
         let nominal = r["accel_nominal"].as_f64().unwrap();
         let eff = r["accel_effective"].as_f64().unwrap();
         assert!(
             eff > 1.0 && eff < nominal,
             "the ACS block makes effective R below nominal: {eff} vs {nominal}"
         );
+        if r["status"] == "ok" {
+            let ef = r["ef_pct"].as_f64().unwrap();
+            assert!((0.0..=100.0).contains(&ef) && r["edv_ml"].as_f64() >= r["esv_ml"].as_f64());
+        } else {
+            assert!(
+                !r["messages"][0].as_str().unwrap().is_empty(),
+                "a failed run says why"
+            );
+        }
     }
     let csv = std::fs::read_to_string(out.join("results.csv")).unwrap();
     assert!(
         csv.starts_with("# Research use"),
         "CSV opens with the caution line"
     );
-    assert_eq!(csv.lines().count(), 1 + 1 + 9, "caution, header, 9 rows");
+    assert_eq!(csv.lines().count(), 1 + 1 + 39, "caution, header, 39 rows");
     assert!(csv
         .lines()
         .nth(1)
         .unwrap()
         .starts_with("subject,method,pattern,accel_nominal,accel_effective"));
+}
 
-    // Same seed, same bytes.
-    let again = tmp.path().join("again");
-    let o = cinegauge(&["demo", "--out", again.to_str().unwrap(), "--quiet"]);
-    assert!(o.status.success());
-    for f in ["results.json", "results.csv", "report.pdf"] {
-        assert!(
-            std::fs::read(out.join(f)).unwrap() == std::fs::read(again.join(f)).unwrap(),
-            "{f} differs between runs"
-        );
+#[test]
+fn reconstruct_writes_a_measurable_folder_and_is_deterministic() {
+    let tmp = tempfile::tempdir().unwrap();
+    let sim = tmp.path().join("sim");
+    simulate(&sim);
+    let kspace = sim.join("kspace");
+    let mut outs = Vec::new();
+    for name in ["a", "b"] {
+        let out = tmp.path().join(name);
+        let o = cinegauge(&[
+            "reconstruct",
+            "--kspace",
+            kspace.to_str().unwrap(),
+            "--pattern",
+            "variable-density",
+            "--accel",
+            "6",
+            "--method",
+            "xf-sparse",
+            "--set",
+            "iterations=8",
+            "--virtual-coils",
+            "3",
+            "--rng-seed",
+            "4",
+            "--out",
+            out.to_str().unwrap(),
+            "--quiet",
+        ]);
+        assert!(o.status.success(), "{}", text(&o));
+        outs.push(out);
+    }
+    assert!(
+        std::fs::read(outs[0].join("images.npy")).unwrap()
+            == std::fs::read(outs[1].join("images.npy")).unwrap(),
+        "same inputs and seed, same bytes"
+    );
+    let log: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(outs[0].join("recon.json")).unwrap()).unwrap();
+    assert_eq!(log["method"], "xf-sparse");
+    assert_eq!(log["parameters"]["iterations"], 8.0);
+    assert_eq!(log["slices"].as_array().unwrap().len(), 11);
+    assert_eq!(
+        log["slices"][0]["residuals"].as_array().unwrap().len(),
+        8,
+        "tolerance 1e-4 is not reached in 8 iterations"
+    );
+    assert!(log["accel_effective"].as_f64().unwrap() < 6.0);
+    let o = cinegauge(&[
+        "measure",
+        "--images",
+        outs[0].to_str().unwrap(),
+        "--seeds",
+        sim.join("seeds.toml").to_str().unwrap(),
+        "--out",
+        tmp.path().join("m").to_str().unwrap(),
+        "--method",
+        "xf-sparse",
+        "--pattern",
+        "variable-density",
+        "--accel",
+        "6",
+        "--quiet",
+    ]);
+    assert!(o.status.success(), "{}", text(&o));
+    // Refusals name the value at fault.
+    let cases: [(&[&str], &str); 5] = [
+        (
+            &[
+                "--pattern",
+                "spiral",
+                "--accel",
+                "4",
+                "--method",
+                "cg-sense",
+            ],
+            "spiral",
+        ),
+        (
+            &[
+                "--pattern",
+                "equispaced",
+                "--accel",
+                "0.5",
+                "--method",
+                "cg-sense",
+            ],
+            "0.5",
+        ),
+        (
+            &[
+                "--pattern",
+                "equispaced",
+                "--accel",
+                "4",
+                "--method",
+                "magic",
+            ],
+            "magic",
+        ),
+        (
+            &[
+                "--pattern",
+                "equispaced",
+                "--accel",
+                "4",
+                "--method",
+                "cg-sense",
+                "--set",
+                "lamda=1",
+            ],
+            "lamda",
+        ),
+        (
+            &[
+                "--pattern",
+                "equispaced",
+                "--accel",
+                "4",
+                "--method",
+                "cg-sense",
+                "--acs-lines",
+                "500",
+            ],
+            "500",
+        ),
+    ];
+    for (args, needle) in cases {
+        let x = tmp.path().join("x");
+        let mut all = vec![
+            "reconstruct",
+            "--kspace",
+            kspace.to_str().unwrap(),
+            "--out",
+            x.to_str().unwrap(),
+        ];
+        all.extend_from_slice(args);
+        let o = cinegauge(&all);
+        assert_eq!(o.status.code(), Some(1), "{}", text(&o));
+        assert!(text(&o).contains(needle), "{needle}: {}", text(&o));
     }
 }
 

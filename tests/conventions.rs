@@ -121,7 +121,11 @@ fn shipped_templates_and_demo_study_parse() {
     assert!(s.unknown.is_empty());
     Geometry::from_sidecar(&s, 20, "templates/geometry.json").unwrap();
     assert_eq!(demo::subjects(1).len(), 3);
-    assert_eq!(demo::runs().len(), 3);
+    assert_eq!(
+        demo::runs(1).len(),
+        1 + 4 * 3,
+        "reference + 4 methods × 3 accelerations"
+    );
     let efs: Vec<f64> = demo::subjects(1).iter().map(|s| s.spec.ef_pct).collect();
     assert!(
         efs[0] >= 55.0 && (40.0..50.0).contains(&efs[1]) && efs[2] < 35.0,

@@ -33,7 +33,7 @@ fn fully_sampled_demo_subjects_match_truth() {
         assert!(subject.spec.snr >= 20.0, "the check is stated for SNR ≥ 20");
         let ph = Phantom::new(subject.spec.clone()).unwrap();
         let truth = pipeline::phantom_truth(&ph);
-        let stack = pipeline::reconstruct_phantom(&ph, &run)
+        let stack = pipeline::reconstruct_phantom(&ph, &run, &Default::default())
             .unwrap()
             .remove(0)
             .stack

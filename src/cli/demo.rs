@@ -26,6 +26,7 @@ pub struct DemoArgs {
 }
 
 pub fn run(a: DemoArgs, quiet: bool) -> anyhow::Result<()> {
+    let started = std::time::Instant::now();
     io::ensure_dir(&a.out).context("preparing the output folder")?;
     let prog = Progress::new("demo", demo::subjects(a.rng_seed).len() as u64, quiet);
     let results = demo::run(a.rng_seed, &|i, n, code| {
@@ -60,10 +61,11 @@ pub fn run(a: DemoArgs, quiet: bool) -> anyhow::Result<()> {
     say(
         quiet,
         &format!(
-            "wrote {}, {} and {}\nResearch use only; not for diagnostic use.",
+            "wrote {}, {} and {} (wall time {:.1} s)\nResearch use only; not for diagnostic use.",
             a.out.join("results.json").display(),
             a.out.join("results.csv").display(),
-            pdf.display()
+            pdf.display(),
+            started.elapsed().as_secs_f64()
         ),
     );
     Ok(())

@@ -1,8 +1,10 @@
 //! Command-line interface: argument definitions and the commands they run.
 
 mod demo;
+mod listing;
 mod measure;
 mod progress;
+mod reconstruct;
 mod simulate;
 
 use clap::{Parser, Subcommand};
@@ -27,6 +29,7 @@ const AFTER_HELP: &str = "\
 Examples:
   cinegauge demo --out cinegauge-demo
   cinegauge simulate --out sim --ef-pct 45 --rng-seed 7
+  cinegauge reconstruct --kspace sim/kspace --pattern variable-density --accel 8 --method xf-sparse --out sim/xf-r8
   cinegauge measure --images sim/reference --seeds sim/seeds.toml --out sim/measured
 
 Exit codes: 0 success, 1 the work could not be done (the message says why), 2 usage error.";
@@ -50,6 +53,12 @@ pub enum Command {
     Demo(demo::DemoArgs),
     /// Write a synthetic study: raw k-space folder, reference images, truth and a seeds file.
     Simulate(simulate::SimulateArgs),
+    /// Undersample a raw k-space folder and reconstruct it with one method.
+    Reconstruct(reconstruct::ReconstructArgs),
+    /// List the reconstruction methods with their parameters and sources.
+    Methods(listing::ListArgs),
+    /// List the sampling patterns.
+    Patterns(listing::ListArgs),
     /// Segment and measure one image series (a folder with images.npy and geometry.json).
     Measure(measure::MeasureArgs),
 }
@@ -63,6 +72,9 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Demo(a) => demo::run(a, quiet),
         Command::Simulate(a) => simulate::run(a, quiet),
+        Command::Reconstruct(a) => reconstruct::run(a, quiet),
+        Command::Methods(a) => listing::methods(a),
+        Command::Patterns(a) => listing::patterns(a),
         Command::Measure(a) => measure::run(a, quiet),
     }
 }

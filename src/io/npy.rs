@@ -152,3 +152,168 @@ fn write_npy_buffered<T: WriteNpyExt>(f: &mut std::fs::File, data: &T) -> std::i
     data.write_npy(&mut w).map_err(std::io::Error::other)?;
     std::io::Write::flush(&mut w)
 }
+
+/// A raw k-space folder: `slice_NN.npy` files in numeric order, geometry and noise data.
+#[derive(Debug, Clone)]
+pub struct KspaceFolder {
+    /// The slice files, slice 0 first.
+    pub slices: Vec<PathBuf>,
+    /// Dimensions `(slices, coils, frames, ky, kx)`, from the first slice.
+    pub dims: (usize, usize, usize, usize, usize),
+    /// Validated geometry.
+    pub geometry: Geometry,
+    /// Coil noise covariance from `noise_cov.npy` or `noise_scan.npy`, if present.
+    pub noise_cov: Option<ndarray::Array2<Complex32>>,
+    /// Sidecar keys that were not understood (to warn about).
+    pub unknown_keys: Vec<String>,
+}
+
+fn read_complex<D: ndarray::Dimension>(file: &Path) -> Result<ndarray::Array<Complex32, D>, IoError>
+where
+    ndarray::Array<Complex32, D>: ReadNpyExt,
+    ndarray::Array<num_complex::Complex64, D>: ReadNpyExt,
+{
+    let open = || std::fs::File::open(file).map_err(|e| IoError::file(file, "cannot open", e));
+    match ndarray::Array::<Complex32, D>::read_npy(open()?) {
+        Ok(a) => Ok(a),
+        Err(first) => match ndarray::Array::<num_complex::Complex64, D>::read_npy(open()?) {
+            Ok(a) => Ok(a.mapv(|z| Complex32::new(z.re as f32, z.im as f32))),
+            Err(_) => Err(IoError::content(
+                file,
+                format!("expected a complex64 or complex128 array: {first}"),
+            )),
+        },
+    }
+}
+
+/// Reads one slice of k-space `[coil, frame, ky, kx]`.
+///
+/// # Errors
+/// [`IoError`] naming the file: wrong dtype or number of axes.
+pub fn read_kspace_slice(file: &Path) -> Result<Array4<Complex32>, IoError> {
+    read_complex::<ndarray::Ix4>(file)
+}
+
+/// Opens a raw k-space folder: lists `slice_NN.npy` in numeric order (no gaps allowed),
+/// reads the first slice for the dimensions, the sidecar, and the noise data.
+///
+/// # Errors
+/// [`IoError`] naming the file or the missing slice.
+pub fn open_kspace_folder(dir: &Path) -> Result<KspaceFolder, IoError> {
+    let mut found: Vec<(usize, PathBuf)> = std::fs::read_dir(dir)
+        .map_err(|e| IoError::file(dir, "cannot list folder", e))?
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter_map(|p| {
+            let name = p.file_name()?.to_str()?.to_string();
+            let n = name
+                .strip_prefix("slice_")?
+                .strip_suffix(".npy")?
+                .parse::<usize>()
+                .ok()?;
+            Some((n, p))
+        })
+        .collect();
+    found.sort();
+    if found.is_empty() {
+        return Err(IoError::content(
+            dir,
+            "no slice_NN.npy files in this k-space folder",
+        ));
+    }
+    for (i, (n, _)) in found.iter().enumerate() {
+        if *n != i {
+            return Err(IoError::content(
+                dir,
+                format!(
+                    "{} is missing (slices must be numbered from 00 without gaps)",
+                    slice_file_name(i)
+                ),
+            ));
+        }
+    }
+    let first = read_kspace_slice(&found[0].1)?;
+    let (nc, nf, ny, nx) = first.dim();
+    let sidecar_path = dir.join(SIDECAR);
+    let sidecar =
+        read_sidecar(&sidecar_path).map_err(|e| IoError::content(&sidecar_path, e.to_string()))?;
+    let geometry = Geometry::from_sidecar(&sidecar, nf, &sidecar_path.display().to_string())
+        .map_err(|e| IoError::content(&sidecar_path, e.to_string()))?;
+    let cov_path = dir.join("noise_cov.npy");
+    let scan_path = dir.join("noise_scan.npy");
+    let noise_cov = if cov_path.exists() {
+        let c = read_complex::<ndarray::Ix2>(&cov_path)?;
+        if c.dim() != (nc, nc) {
+            return Err(IoError::content(
+                &cov_path,
+                format!(
+                    "expected a {nc} × {nc} coil covariance, found {:?}",
+                    c.dim()
+                ),
+            ));
+        }
+        Some(c)
+    } else if scan_path.exists() {
+        let s = read_complex::<ndarray::Ix2>(&scan_path)?;
+        if s.nrows() != nc || s.ncols() < 2 {
+            return Err(IoError::content(
+                &scan_path,
+                format!("expected [{nc} coils, samples ≥ 2], found {:?}", s.dim()),
+            ));
+        }
+        let n = s.ncols() as f32;
+        Some(ndarray::Array2::from_shape_fn((nc, nc), |(i, j)| {
+            s.row(i)
+                .iter()
+                .zip(s.row(j).iter())
+                .map(|(a, b)| *a * b.conj())
+                .sum::<Complex32>()
+                / n
+        }))
+    } else {
+        None
+    };
+    Ok(KspaceFolder {
+        slices: found.into_iter().map(|(_, p)| p).collect(),
+        dims: (0, nc, nf, ny, nx),
+        geometry,
+        noise_cov,
+        unknown_keys: sidecar.unknown.keys().cloned().collect(),
+    }
+    .with_slice_count())
+}
+
+impl KspaceFolder {
+    fn with_slice_count(mut self) -> Self {
+        self.dims.0 = self.slices.len();
+        self
+    }
+
+    /// Reads slice `k`, checking it has the same shape as slice 0.
+    ///
+    /// # Errors
+    /// [`IoError`] naming the file.
+    pub fn read(&self, k: usize) -> Result<Array4<Complex32>, IoError> {
+        let a = read_kspace_slice(&self.slices[k])?;
+        let (_, nc, nf, ny, nx) = self.dims;
+        if a.dim() != (nc, nf, ny, nx) {
+            return Err(IoError::content(
+                &self.slices[k],
+                format!(
+                    "shape {:?} differs from slice 0's {:?}",
+                    a.dim(),
+                    (nc, nf, ny, nx)
+                ),
+            ));
+        }
+        if let Some((i, v)) = a
+            .indexed_iter()
+            .find(|(_, v)| !v.re.is_finite() || !v.im.is_finite())
+        {
+            return Err(IoError::content(
+                &self.slices[k],
+                format!("non-finite value {v} at {i:?}"),
+            ));
+        }
+        Ok(a)
+    }
+}

