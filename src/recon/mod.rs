@@ -7,6 +7,7 @@
 
 mod cg_sense;
 pub mod coils;
+mod grappa;
 pub mod low_rank_sparse;
 pub mod operator;
 pub mod params;
@@ -24,6 +25,7 @@ use crate::fft::CenteredFft2;
 use crate::sampling::SamplingMask;
 
 pub use cg_sense::CgSense;
+pub use grappa::Grappa;
 pub use low_rank_sparse::LowRankSparse;
 pub use params::{ParamSpec, Params};
 pub use reference::Reference;
@@ -178,6 +180,7 @@ pub static REGISTRY: &[&dyn Reconstructor] = &[
     &Reference,
     &ZeroFilled,
     &CgSense,
+    &Grappa,
     &XfSparse,
     &TemporalTv,
     &LowRankSparse,

@@ -41,32 +41,40 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
     let subjects: std::collections::BTreeSet<&str> =
         results.runs.iter().map(|r| r.subject.as_str()).collect();
     let mut methods: Vec<String> = Vec::new();
-    for r in &results.runs {
-        let m = format!(
-            "{} / {} R={}",
-            r.method,
-            r.pattern,
-            trim_num(r.accel_nominal)
-        );
+    let mut accels: Vec<f64> = Vec::new();
+    for r in results.runs.iter().filter(|r| r.method != "reference") {
+        let m = format!("{} ({})", r.method, r.pattern);
         if !methods.contains(&m) {
             methods.push(m);
         }
+        if !accels.contains(&r.accel_nominal) {
+            accels.push(r.accel_nominal);
+        }
     }
+    accels.sort_by(f64::total_cmp);
+    let accel_text: Vec<String> = accels.iter().map(|a| trim_num(*a)).collect();
     page.text(MARGIN, y, 11.0, Weight::Bold, "What was compared");
     y += 5.5;
-    for line in [
+    let compared = [
         format!("{} subject(s): {}", subjects.len(), subjects.iter().cloned().collect::<Vec<_>>().join(", ")),
-        format!("Reconstructions: {}", methods.join("; ")),
+        format!(
+            "Fully sampled reference against: {} at R = {}.",
+            if methods.is_empty() { "nothing".to_string() } else { methods.join(", ") },
+            accel_text.join(", ")
+        ),
         format!(
             "Volumes by the method of discs (area x centre-to-centre slice spacing); {}.",
             results.runs.first().map(|r| r.blood_pool_convention.as_str()).unwrap_or("no runs")
         ),
         "ED = frame of largest LV volume, ES = frame of smallest. R nominal / effective (all lines / acquired lines).".into(),
-    ] {
+    ];
+    for line in compared.iter().flat_map(|l| wrap(l, 115)) {
         page.text(MARGIN, y, 8.5, Weight::Regular, &line);
         y += 4.3;
     }
     y += 3.0;
+    y = ef_grid(&mut page, results, y);
+    y += 4.0;
     page.text(MARGIN, y, 11.0, Weight::Bold, "Clinical numbers per run");
     y += 3.0;
 
@@ -218,6 +226,110 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
 /// [`IoError`] naming the file.
 pub fn write(results: &ResultsFile, path: &Path) -> Result<(), IoError> {
     write_atomic(path, &render(results))
+}
+
+/// A compact grid of EF per subject and method (rows) and acceleration (columns), with the
+/// fully sampled reference first; returns the new vertical position.
+fn ef_grid(page: &mut Page, results: &ResultsFile, mut y: f32) -> f32 {
+    let mut accels: Vec<f64> = results
+        .runs
+        .iter()
+        .filter(|r| r.method != "reference")
+        .map(|r| r.accel_nominal)
+        .collect();
+    accels.sort_by(f64::total_cmp);
+    accels.dedup();
+    let mut keys: Vec<(String, String)> = Vec::new();
+    for r in results.runs.iter().filter(|r| r.method != "reference") {
+        let k = (r.subject.clone(), format!("{} / {}", r.method, r.pattern));
+        if !keys.contains(&k) {
+            keys.push(k);
+        }
+    }
+    if accels.is_empty() {
+        return y;
+    }
+    page.text(
+        MARGIN,
+        y,
+        11.0,
+        Weight::Bold,
+        "EF (%) by method and acceleration",
+    );
+    y += 3.0;
+    let (w_subject, w_method, w_cell) = (16.0, 50.0, 18.0);
+    page.fill_rect(MARGIN, y, PAGE_W - 2.0 * MARGIN, ROW_H + 1.0, grey(0.88));
+    page.text(MARGIN + 1.0, y + 4.2, 8.0, Weight::Bold, "Subject");
+    page.text(
+        MARGIN + 1.0 + w_subject,
+        y + 4.2,
+        8.0,
+        Weight::Bold,
+        "Method / pattern",
+    );
+    let x0 = MARGIN + 1.0 + w_subject + w_method;
+    page.text_right(x0 + w_cell - 1.0, y + 4.2, 8.0, Weight::Bold, "full");
+    for (i, r) in accels.iter().enumerate() {
+        page.text_right(
+            x0 + (i as f32 + 2.0) * w_cell - 1.0,
+            y + 4.2,
+            8.0,
+            Weight::Bold,
+            &format!("R={}", trim_num(*r)),
+        );
+    }
+    y += ROW_H + 1.0;
+    for (n, (subject, label)) in keys.iter().enumerate() {
+        if y > PAGE_H - MARGIN - 20.0 {
+            break;
+        }
+        if n % 2 == 1 {
+            page.fill_rect(MARGIN, y, PAGE_W - 2.0 * MARGIN, ROW_H, grey(0.96));
+        }
+        page.text(MARGIN + 1.0, y + 3.8, 8.0, Weight::Regular, subject);
+        page.text(
+            MARGIN + 1.0 + w_subject,
+            y + 3.8,
+            8.0,
+            Weight::Regular,
+            label,
+        );
+        let reference = results
+            .runs
+            .iter()
+            .find(|r| &r.subject == subject && r.method == "reference");
+        let ef = |r: Option<&crate::results::RunRow>| match r {
+            Some(r) => r
+                .numbers
+                .as_ref()
+                .map(|n| format!("{:.1}", n.ef_pct))
+                .unwrap_or_else(|| "failed".into()),
+            None => "-".into(),
+        };
+        page.text_right(
+            x0 + w_cell - 1.0,
+            y + 3.8,
+            8.0,
+            Weight::Regular,
+            &ef(reference),
+        );
+        for (i, a) in accels.iter().enumerate() {
+            let run = results.runs.iter().find(|r| {
+                &r.subject == subject
+                    && &format!("{} / {}", r.method, r.pattern) == label
+                    && r.accel_nominal == *a
+            });
+            page.text_right(
+                x0 + (i as f32 + 2.0) * w_cell - 1.0,
+                y + 3.8,
+                8.0,
+                Weight::Regular,
+                &ef(run),
+            );
+        }
+        y += ROW_H;
+    }
+    y
 }
 
 fn caution_box(page: &mut Page, y: f32) -> f32 {
