@@ -401,3 +401,46 @@ fn bad_geometry_sidecar_is_named() {
         "{msg}"
     );
 }
+
+#[test]
+fn external_reconstructions_enter_under_their_label() {
+    let tmp = tempfile::tempdir().unwrap();
+    let sim = tmp.path().join("sim");
+    simulate(&sim);
+    let images = sim.join("reference");
+    let seeds = sim.join("seeds.toml");
+    let run = |method: &str, out: &str| {
+        cinegauge(&[
+            "measure",
+            "--images",
+            images.to_str().unwrap(),
+            "--seeds",
+            seeds.to_str().unwrap(),
+            "--out",
+            tmp.path().join(out).to_str().unwrap(),
+            "--method",
+            method,
+            "--pattern",
+            "variable-density",
+            "--accel",
+            "8",
+            "--quiet",
+        ])
+    };
+    let o = run("external:unrolled-net.v2", "ok");
+    assert!(o.status.success(), "{}", text(&o));
+    let m: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(tmp.path().join("ok/measurements.json")).unwrap())
+            .unwrap();
+    assert_eq!(m["runs"][0]["method"], "external:unrolled-net.v2");
+    assert_eq!(m["runs"][0]["accel_nominal"], 8.0);
+    for (bad, needle) in [
+        ("external:", "label"),
+        ("external:a b", "a b"),
+        ("fancy-net", "fancy-net"),
+    ] {
+        let o = run(bad, "bad");
+        assert_eq!(o.status.code(), Some(1), "{bad}");
+        assert!(text(&o).contains(needle), "{bad}: {}", text(&o));
+    }
+}

@@ -50,6 +50,27 @@ pub struct MeasureArgs {
 }
 
 pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
+    if let Some(label) = a.method.strip_prefix("external:") {
+        anyhow::ensure!(
+            !label.is_empty() && label.chars().all(|c| c.is_ascii_alphanumeric() || "-_.".contains(c)),
+            "--method external:<label>: the label may hold letters, digits, '-', '_' and '.', found `{label}`"
+        );
+    } else {
+        cinegauge::recon::by_id(&a.method)
+            .context("--method: a registered method or external:<label>")?;
+    }
+    cinegauge::sampling::Pattern::from_id(&a.pattern).context("--pattern")?;
+    for (name, r) in [
+        ("--accel", Some(a.accel)),
+        ("--accel-effective", a.accel_effective),
+    ] {
+        if let Some(r) = r {
+            anyhow::ensure!(
+                r.is_finite() && r >= 1.0,
+                "{name}: expected a number ≥ 1, found {r}"
+            );
+        }
+    }
     let series = npy::read_image_series(&a.images).context("reading the image series")?;
     for k in &series.unknown_keys {
         say(
@@ -64,9 +85,9 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
             .with_context(|| format!("measuring {}", series.path.display()))?;
     let plan = ReconPlan {
         method: a.method.clone(),
-        pattern: "unknown".into(),
-        accel_nominal: 1.0,
-        accel_effective: 1.0,
+        pattern: a.pattern.clone(),
+        accel_nominal: a.accel,
+        accel_effective: a.accel_effective.unwrap_or(a.accel),
     };
     let row = pipeline::result_row(&a.subject, &plan, Ok((seg, vol)), &params, None);
     let inputs = vec![

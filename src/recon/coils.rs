@@ -250,8 +250,19 @@ pub fn whitening_matrix(
     }) {
         return Err(bad("a matrix that is not Hermitian".into()));
     }
-    let chol = nalgebra::linalg::Cholesky::new(a)
-        .ok_or_else(|| bad("a matrix that is not positive definite".into()))?;
+    // nalgebra's complex Cholesky takes complex square roots, so a negative or non-real
+    // diagonal would not fail there: check positivity of the factor's diagonal explicitly.
+    let not_pd = || bad("a matrix that is not positive definite".into());
+    if (0..n).any(|i| a[(i, i)].re <= 0.0) {
+        return Err(not_pd());
+    }
+    let chol = nalgebra::linalg::Cholesky::new(a).ok_or_else(not_pd)?;
+    if (0..n).any(|i| {
+        let d = chol.l_dirty()[(i, i)];
+        d.re.is_nan() || d.re <= 0.0 || d.im.abs() > 1e-9 * d.re
+    }) {
+        return Err(not_pd());
+    }
     let l_inv = chol
         .l()
         .try_inverse()
