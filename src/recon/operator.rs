@@ -8,7 +8,9 @@
 //! With sensitivities normalised to `Σ_c |S_c|² ≤ 1`, `‖EᴴE‖ ≤ 1`, so gradient methods
 //! can take unit steps.
 
-use ndarray::{Array2, Array3, Array4, ArrayView3, ArrayView4, ArrayViewMut3, Axis, Zip};
+use ndarray::{
+    Array2, Array3, Array4, ArrayView3, ArrayView4, ArrayViewMut3, Axis, CowArray, Ix3, Zip,
+};
 use num_complex::Complex32;
 use rayon::prelude::*;
 
@@ -31,7 +33,7 @@ impl Workspace {
 
 /// The encoding operator of one slice.
 pub struct Encoding<'a> {
-    sens: ArrayView3<'a, Complex32>,
+    sens: CowArray<'a, Complex32, Ix3>,
     mask: &'a Array2<bool>,
     fft: &'a CenteredFft2,
 }
@@ -60,6 +62,11 @@ impl<'a> Encoding<'a> {
                 found: format!("{:?} with a mask of {} lines", sens.dim(), mask.ncols()),
             });
         }
+        let sens = if sens.is_standard_layout() {
+            CowArray::from(sens)
+        } else {
+            CowArray::from(sens.as_standard_layout().into_owned())
+        };
         Ok(Encoding { sens, mask, fft })
     }
 
@@ -156,16 +163,27 @@ impl<'a> Encoding<'a> {
                 });
         }
         let coil = &ws.coil;
+        let plane = r * c;
+        let sens = self
+            .sens
+            .as_slice()
+            .expect("standard layout by construction");
+        let coil = coil.as_slice().expect("workspace is standard layout");
         x.axis_iter_mut(Axis(0))
             .into_par_iter()
             .enumerate()
             .for_each(|(f, mut xf)| {
-                xf.fill(Complex32::default());
-                for ci in 0..nc {
-                    Zip::from(&mut xf)
-                        .and(self.sens.index_axis(Axis(0), ci))
-                        .and(coil.index_axis(Axis(0), ci).index_axis(Axis(0), f))
-                        .for_each(|o, s, v| *o += s.conj() * *v);
+                // One pass over the pixels, summing the coils in the inner loop.
+                let sum = |p: usize| {
+                    let mut acc = Complex32::default();
+                    for ci in 0..nc {
+                        acc += sens[ci * plane + p].conj() * coil[(ci * nf + f) * plane + p];
+                    }
+                    acc
+                };
+                match xf.as_slice_mut() {
+                    Some(out) => out.iter_mut().enumerate().for_each(|(p, o)| *o = sum(p)),
+                    None => xf.iter_mut().enumerate().for_each(|(p, o)| *o = sum(p)),
                 }
             });
     }
