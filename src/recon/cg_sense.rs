@@ -9,7 +9,7 @@
 use ndarray::{Array3, Axis, Zip};
 use num_complex::Complex32;
 
-use super::operator::Encoding;
+use super::operator::{converged, Encoding};
 use super::params::{iterations, tolerance};
 use super::{coils, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor};
 
@@ -61,10 +61,8 @@ impl Reconstructor for CgSense {
             p.get("tolerance"),
             p.get("lambda") as f32,
         );
-        let mut ws = op.workspace();
-        let (_, nf, nr, nc) = op.dims();
-        let mut b = Array3::<Complex32>::zeros((nf, nr, nc));
-        op.adjoint(input.kspace, b.view_mut(), &mut ws);
+        let (b, mut ws) = op.data_adjoint(input.kspace);
+        let (nf, nr, nc) = b.dim();
         let b_norm = frame_dots(&b, &b)
             .iter()
             .sum::<f64>()
@@ -110,7 +108,7 @@ impl Reconstructor for CgSense {
                     .for_each(|d, r| *d = *r + *d * beta);
             }
             rs = rs_new;
-            if tol > 0.0 && residuals.last().is_some_and(|&v| v < tol) {
+            if converged(&residuals, tol) {
                 break;
             }
         }

@@ -14,7 +14,7 @@ use ndarray::{Array2, Array3, Zip};
 use num_complex::{Complex32, Complex64};
 use rayon::prelude::*;
 
-use super::operator::Encoding;
+use super::operator::{converged, Encoding};
 use super::params::{iterations, tolerance};
 use super::sparsity::{relative_change, xf_peak, xf_shrink};
 use super::{coils, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor};
@@ -142,11 +142,9 @@ impl Reconstructor for LowRankSparse {
     fn reconstruct(&self, input: &ReconInput, p: &Params) -> Result<ReconOutput, ReconError> {
         let sens = coils::for_input(input, self.id())?;
         let op = Encoding::new(sens.view(), &input.mask.lines, input.fft)?;
-        let mut ws = op.workspace();
-        let (_, nf, nr, nc) = op.dims();
+        let (b, mut ws) = op.data_adjoint(input.kspace);
+        let (nf, nr, nc) = b.dim();
         let tf = TemporalFft::new(nf);
-        let mut b = Array3::<Complex32>::zeros((nf, nr, nc));
-        op.adjoint(input.kspace, b.view_mut(), &mut ws);
         let lambda_s = p.get("lambda_s") as f32 * xf_peak(&b, &tf);
         let (iters, tol, lambda_l) = (p.count("iterations"), p.get("tolerance"), p.get("lambda_l"));
         let mut m = b.clone();
@@ -180,7 +178,7 @@ impl Reconstructor for LowRankSparse {
             residuals.push(relative_change(&g, &m));
             std::mem::swap(&mut m, &mut g);
             std::mem::swap(&mut l_prev, &mut l);
-            if tol > 0.0 && residuals.last().is_some_and(|&v| v < tol) {
+            if converged(&residuals, tol) {
                 break;
             }
         }

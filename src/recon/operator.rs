@@ -82,6 +82,15 @@ impl<'a> Encoding<'a> {
         Workspace::new(nc, nf, r, c)
     }
 
+    /// `Eᴴy` of the measured data, and a workspace for the iterations that follow.
+    pub fn data_adjoint(&self, y: ArrayView4<Complex32>) -> (Array3<Complex32>, Workspace) {
+        let mut ws = self.workspace();
+        let (_, nf, r, c) = self.dims();
+        let mut b = Array3::<Complex32>::zeros((nf, r, c));
+        self.adjoint(y, b.view_mut(), &mut ws);
+        (b, ws)
+    }
+
     /// `y = E x` into the workspace buffer, returned as a view.
     pub fn forward_into<'w>(
         &self,
@@ -209,4 +218,10 @@ pub fn dot(
 /// `‖a‖²` in f64.
 pub fn norm_sqr(a: &Array3<Complex32>) -> f64 {
     a.iter().map(|z| f64::from(z.norm_sqr())).sum()
+}
+
+/// Whether an iteration may stop: a positive tolerance and the last residual below it
+/// (`tolerance = 0` runs every iteration, for fair timing).
+pub fn converged(residuals: &[f64], tolerance: f64) -> bool {
+    tolerance > 0.0 && residuals.last().is_some_and(|&v| v < tolerance)
 }

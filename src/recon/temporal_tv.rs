@@ -12,7 +12,7 @@
 use ndarray::{Array3, Axis, Zip};
 use num_complex::Complex32;
 
-use super::operator::Encoding;
+use super::operator::{converged, Encoding};
 use super::params::{iterations, tolerance};
 use super::sparsity::relative_change;
 use super::{coils, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor};
@@ -72,10 +72,8 @@ impl Reconstructor for TemporalTv {
     fn reconstruct(&self, input: &ReconInput, p: &Params) -> Result<ReconOutput, ReconError> {
         let sens = coils::for_input(input, self.id())?;
         let op = Encoding::new(sens.view(), &input.mask.lines, input.fft)?;
-        let mut ws = op.workspace();
-        let (_, nf, nr, nc) = op.dims();
-        let mut b = Array3::<Complex32>::zeros((nf, nr, nc));
-        op.adjoint(input.kspace, b.view_mut(), &mut ws);
+        let (b, mut ws) = op.data_adjoint(input.kspace);
+        let (nf, nr, nc) = b.dim();
         let lambda = p.get("lambda") as f32 * b.iter().map(|z| z.norm()).fold(0.0, f32::max);
         let (iters, tol) = (p.count("iterations"), p.get("tolerance"));
         let (sigma, tau) = (0.25f32, 1.0f32 / (0.5 + 0.25 * 4.0));
@@ -105,7 +103,7 @@ impl Reconstructor for TemporalTv {
             });
             residuals.push(relative_change(&g, &x));
             std::mem::swap(&mut x, &mut g);
-            if tol > 0.0 && residuals.last().is_some_and(|&v| v < tol) {
+            if converged(&residuals, tol) {
                 break;
             }
         }

@@ -10,7 +10,7 @@
 use ndarray::{Array3, Zip};
 use num_complex::Complex32;
 
-use super::operator::Encoding;
+use super::operator::{converged, Encoding};
 use super::params::{iterations, tolerance};
 use super::sparsity::{relative_change, xf_peak, xf_shrink};
 use super::{coils, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor};
@@ -47,11 +47,9 @@ impl Reconstructor for XfSparse {
     fn reconstruct(&self, input: &ReconInput, p: &Params) -> Result<ReconOutput, ReconError> {
         let sens = coils::for_input(input, self.id())?;
         let op = Encoding::new(sens.view(), &input.mask.lines, input.fft)?;
-        let mut ws = op.workspace();
-        let (_, nf, nr, nc) = op.dims();
+        let (b, mut ws) = op.data_adjoint(input.kspace);
+        let (nf, nr, nc) = b.dim();
         let tf = TemporalFft::new(nf);
-        let mut b = Array3::<Complex32>::zeros((nf, nr, nc));
-        op.adjoint(input.kspace, b.view_mut(), &mut ws);
         let lambda = p.get("lambda") as f32 * xf_peak(&b, &tf);
         let (iters, tol) = (p.count("iterations"), p.get("tolerance"));
         let mut x = b.clone();
@@ -76,7 +74,7 @@ impl Reconstructor for XfSparse {
                 .for_each(|z, new, old| *z = *new + (*new - *old) * momentum);
             std::mem::swap(&mut x, &mut g);
             t = t_next;
-            if tol > 0.0 && residuals.last().is_some_and(|&v| v < tol) {
+            if converged(&residuals, tol) {
                 break;
             }
         }
