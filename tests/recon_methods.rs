@@ -9,7 +9,7 @@ use cinegauge::fft::{CenteredFft2, Direction, TemporalFft};
 use cinegauge::phantom::{coils::sensitivities, Phantom, PhantomSpec};
 use cinegauge::recon::operator::{dot, Encoding};
 use cinegauge::recon::{self, Params, ReconError, ReconInput};
-use cinegauge::sampling::{Pattern, SamplingSpec};
+use cinegauge::sampling::{Pattern, SamplingMask, SamplingSpec};
 use ndarray::{Array3, Array4, Axis};
 use num_complex::Complex32;
 
@@ -131,6 +131,24 @@ fn simulate_kspace(
     k
 }
 
+/// Runs `method` on one slice of k-space (the input is checked by `recon::run`).
+fn run_on(
+    method: &'static dyn recon::Reconstructor,
+    kspace: ndarray::ArrayView4<Complex32>,
+    mask: &SamplingMask,
+    fft: &CenteredFft2,
+    sens: Option<&Array3<Complex32>>,
+    params: &Params,
+) -> Result<recon::ReconOutput, ReconError> {
+    let input = ReconInput {
+        kspace,
+        mask,
+        fft,
+        sens: sens.map(|s| s.view()),
+    };
+    recon::run(method, &input, params)
+}
+
 fn nrmse(a: &Array3<f32>, truth: &Array3<f32>) -> f64 {
     let num: f64 = a
         .iter()
@@ -166,17 +184,7 @@ fn cg_sense_recovers_shepp_logan_at_r2() {
         ],
     )
     .unwrap();
-    let out = recon::run(
-        m,
-        &ReconInput {
-            kspace: k.view(),
-            mask: &mask,
-            fft: &fft,
-            sens: Some(sens.view()),
-        },
-        &p,
-    )
-    .unwrap();
+    let out = run_on(m, k.view(), &mask, &fft, Some(&sens), &p).unwrap();
     let e = nrmse(&out.images, &x.mapv(|z| z.norm()));
     assert!(e < 1e-3, "NRMSE {e:e} after {} iterations", out.iterations);
 }
@@ -221,17 +229,7 @@ fn sense_noise_amplification_matches_the_analytic_g_factor() {
         mask.apply(k.view_mut());
         // cg-sense returns magnitudes; reconstruct real and imaginary noise by linearity:
         // run on k and on i·k is not needed, because E[|x|²] = var(x) for zero-mean noise.
-        let out = recon::run(
-            m,
-            &ReconInput {
-                kspace: k.view(),
-                mask: &mask,
-                fft: &fft,
-                sens: Some(sens.view()),
-            },
-            &p,
-        )
-        .unwrap();
+        let out = run_on(m, k.view(), &mask, &fft, Some(&sens), &p).unwrap();
         sum2.zip_mut_with(&out.images, |s, v| *s += f64::from(*v).powi(2));
     }
     let mut errs = Vec::new();
@@ -364,17 +362,7 @@ fn bad_reconstruction_inputs_are_named() {
     let m = recon::by_id("cg-sense").unwrap();
     let mut k = Array4::<Complex32>::zeros((3, 2, 16, 12));
     k[(1, 1, 5, 7)] = Complex32::new(f32::NAN, 0.0);
-    let e = recon::run(
-        m,
-        &ReconInput {
-            kspace: k.view(),
-            mask: &mask,
-            fft: &fft,
-            sens: None,
-        },
-        &Params::defaults(m),
-    )
-    .unwrap_err();
+    let e = run_on(m, k.view(), &mask, &fft, None, &Params::defaults(m)).unwrap_err();
     assert!(
         matches!(
             e,
@@ -390,17 +378,7 @@ fn bad_reconstruction_inputs_are_named() {
     );
     let k = Array4::<Complex32>::zeros((3, 2, 16, 12));
     let wrong = Array3::<Complex32>::zeros((2, 16, 12));
-    let e = recon::run(
-        m,
-        &ReconInput {
-            kspace: k.view(),
-            mask: &mask,
-            fft: &fft,
-            sens: Some(wrong.view()),
-        },
-        &Params::defaults(m),
-    )
-    .unwrap_err();
+    let e = run_on(m, k.view(), &mask, &fft, Some(&wrong), &Params::defaults(m)).unwrap_err();
     assert!(
         e.to_string().contains("coil sensitivities") && e.to_string().contains("[2, 16, 12]"),
         "{e}"
@@ -449,14 +427,12 @@ fn grappa_restores_noise_free_data_at_r2() {
     let fft = CenteredFft2::new(rows, cols);
     let reference = recon::by_id("reference").unwrap();
     let fullmask = SamplingSpec::full().mask(nf, rows).unwrap();
-    let truth = recon::run(
+    let truth = run_on(
         reference,
-        &ReconInput {
-            kspace: full.view(),
-            mask: &fullmask,
-            fft: &fft,
-            sens: None,
-        },
+        full.view(),
+        &fullmask,
+        &fft,
+        None,
         &Params::defaults(reference),
     )
     .unwrap()
@@ -468,33 +444,13 @@ fn grappa_restores_noise_free_data_at_r2() {
     let mut k = full.clone();
     mask.apply(k.view_mut());
     let g = recon::by_id("grappa").unwrap();
-    let out = recon::run(
-        g,
-        &ReconInput {
-            kspace: k.view(),
-            mask: &mask,
-            fft: &fft,
-            sens: None,
-        },
-        &Params::defaults(g),
-    )
-    .unwrap();
+    let out = run_on(g, k.view(), &mask, &fft, None, &Params::defaults(g)).unwrap();
     let e = nrmse(&out.images, &truth);
     assert!(e < 0.02, "GRAPPA NRMSE {e:.4}");
     let vd = SamplingSpec::new(Pattern::VariableDensity, 2.0, 24)
         .unwrap()
         .mask(nf, rows)
         .unwrap();
-    let e = recon::run(
-        g,
-        &ReconInput {
-            kspace: k.view(),
-            mask: &vd,
-            fft: &fft,
-            sens: None,
-        },
-        &Params::defaults(g),
-    )
-    .unwrap_err();
+    let e = run_on(g, k.view(), &vd, &fft, None, &Params::defaults(g)).unwrap_err();
     assert!(e.to_string().contains("equispaced"), "{e}");
 }

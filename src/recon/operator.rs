@@ -9,7 +9,8 @@
 //! can take unit steps.
 
 use ndarray::{
-    Array2, Array3, Array4, ArrayView3, ArrayView4, ArrayViewMut3, Axis, CowArray, Ix3, Zip,
+    Array2, Array3, Array4, ArrayView3, ArrayView4, ArrayViewMut2, ArrayViewMut3, Axis, CowArray,
+    Ix3, Zip,
 };
 use num_complex::Complex32;
 use rayon::prelude::*;
@@ -97,28 +98,15 @@ impl<'a> Encoding<'a> {
         x: ArrayView3<Complex32>,
         ws: &'w mut Workspace,
     ) -> ArrayView4<'w, Complex32> {
-        let (nc, nf, r, c) = self.dims();
-        let mut flat = ws
-            .coil
-            .view_mut()
-            .into_shape_with_order((nc * nf, r, c))
-            .expect("standard layout");
-        flat.axis_iter_mut(Axis(0))
-            .into_par_iter()
-            .enumerate()
-            .for_each_init(FftScratch::default, |s, (i, mut plane)| {
-                let (coil, f) = (i / nf, i % nf);
-                Zip::from(&mut plane)
-                    .and(self.sens.index_axis(Axis(0), coil))
-                    .and(x.index_axis(Axis(0), f))
-                    .for_each(|o, s, v| *o = *s * *v);
-                self.fft.process(plane.view_mut(), Direction::Forward, s);
-                for (ky, mut line) in plane.outer_iter_mut().enumerate() {
-                    if !self.mask[(f, ky)] {
-                        line.fill(Complex32::default());
-                    }
-                }
-            });
+        self.each_plane(ws, |coil, f, mut plane, scratch| {
+            Zip::from(&mut plane)
+                .and(self.sens.index_axis(Axis(0), coil))
+                .and(x.index_axis(Axis(0), f))
+                .for_each(|o, s, v| *o = *s * *v);
+            self.fft
+                .process(plane.view_mut(), Direction::Forward, scratch);
+            self.zero_unacquired(&mut plane, f);
+        });
         ws.coil.view()
     }
 
@@ -149,28 +137,44 @@ impl<'a> Encoding<'a> {
         self.adjoint_in_place(out, ws);
     }
 
+    /// Runs `op(coil, frame, plane, scratch)` on every coil × frame plane of the workspace,
+    /// in parallel, with per-thread FFT scratch.
+    fn each_plane(
+        &self,
+        ws: &mut Workspace,
+        op: impl Fn(usize, usize, ArrayViewMut2<Complex32>, &mut FftScratch) + Sync + Send,
+    ) {
+        let (nc, nf, r, c) = self.dims();
+        let mut flat = ws
+            .coil
+            .view_mut()
+            .into_shape_with_order((nc * nf, r, c))
+            .expect("standard layout");
+        flat.axis_iter_mut(Axis(0))
+            .into_par_iter()
+            .enumerate()
+            .for_each_init(FftScratch::default, |s, (i, plane)| {
+                op(i / nf, i % nf, plane, s)
+            });
+    }
+
+    /// Zeroes the ky lines of `plane` that frame `f` did not acquire (the mask `M_f`).
+    fn zero_unacquired(&self, plane: &mut ArrayViewMut2<Complex32>, f: usize) {
+        for (ky, mut line) in plane.outer_iter_mut().enumerate() {
+            if !self.mask[(f, ky)] {
+                line.fill(Complex32::default());
+            }
+        }
+    }
+
     /// Applies `Eᴴ` to the k-space held in the workspace.
     fn adjoint_in_place(&self, mut x: ArrayViewMut3<Complex32>, ws: &mut Workspace) {
         let (nc, nf, r, c) = self.dims();
-        {
-            let mut flat = ws
-                .coil
-                .view_mut()
-                .into_shape_with_order((nc * nf, r, c))
-                .expect("standard layout");
-            flat.axis_iter_mut(Axis(0))
-                .into_par_iter()
-                .enumerate()
-                .for_each_init(FftScratch::default, |s, (i, mut plane)| {
-                    let f = i % nf;
-                    for (ky, mut line) in plane.outer_iter_mut().enumerate() {
-                        if !self.mask[(f, ky)] {
-                            line.fill(Complex32::default());
-                        }
-                    }
-                    self.fft.process(plane.view_mut(), Direction::Inverse, s);
-                });
-        }
+        self.each_plane(ws, |_, f, mut plane, scratch| {
+            self.zero_unacquired(&mut plane, f);
+            self.fft
+                .process(plane.view_mut(), Direction::Inverse, scratch);
+        });
         let coil = &ws.coil;
         let plane = r * c;
         let sens = self
