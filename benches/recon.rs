@@ -2,185 +2,250 @@
 //! side by side with straightforward Python versions (benches/reference/recon_ref.py) on
 //! `numpy.fft` and on `scipy.fft` with all cores.
 //!
-//! Run: `cargo bench --bench recon` (prints a table; needs python3 with numpy and scipy for
-//! the side-by-side columns, otherwise prints the Rust figures alone).
-//! Per-iteration time is `(t(N) − t(1)) / (N − 1)`, which removes the set-up (adjoint of
-//! the data, thresholds) from the figure; each figure is the median of 3 runs.
+//! Run: `cargo bench --bench recon` (criterion measures; a table follows with the Python
+//! columns, which need python3 with numpy and scipy, otherwise the Rust figures alone).
+//! Per-iteration time is `(t(N) − t(1)) / (N − 1)` of criterion's medians, which removes
+//! the set-up (adjoint of the data, thresholds) from the figure. The FFT share is the time
+//! of exactly the FFT calls one iteration makes (1-D ky transforms of the normal operator,
+//! plus the temporal transforms where the method has them), timed alone, over the
+//! iteration time.
 
+use std::cell::RefCell;
+use std::collections::BTreeMap;
+use std::hint::black_box;
 use std::process::Command;
-use std::time::Instant;
+use std::time::{Duration, Instant};
 
-use cinegauge::fft::{CenteredFft2, Direction, TemporalFft};
+use cinegauge::fft::{CenteredFft2, Direction, LineFft};
+use cinegauge::recon::operator::Encoding;
 use cinegauge::recon::{self, Params, ReconInput};
-use cinegauge::sampling::{Pattern, SamplingSpec};
+use cinegauge::sampling::{Pattern, SamplingMask, SamplingSpec};
+use criterion::Criterion;
 use ndarray::{Array3, Array4, Axis};
 use num_complex::Complex32;
+use rayon::prelude::*;
 
 const COILS: usize = 8;
 const FRAMES: usize = 24;
 const ROWS: usize = 160;
 const COLS: usize = 128;
 const ITERS: usize = 10;
+const METHODS: [&str; 3] = ["cg-sense", "xf-sparse", "low-rank-sparse"];
 
-fn median(mut v: Vec<f64>) -> f64 {
+/// Median seconds per call of each benchmark, filled by the `iter_custom` closures.
+type Medians = RefCell<BTreeMap<String, Vec<f64>>>;
+
+struct Slice {
+    sens: Array3<Complex32>,
+    mask: SamplingMask,
+    kspace: Array4<Complex32>,
+    fft: CenteredFft2,
+}
+
+impl Slice {
+    fn new() -> Self {
+        let mut state = 1u64;
+        let mut rnd = || {
+            state = cinegauge::rng::stream_seed(state, 7);
+            (state >> 11) as f32 / (1u64 << 53) as f32 - 0.5
+        };
+        let mut sens = Array3::from_shape_fn((COILS, ROWS, COLS), |_| Complex32::new(rnd(), rnd()));
+        let norm = sens.map_axis(Axis(0), |v| {
+            v.iter().map(|z| z.norm_sqr()).sum::<f32>().sqrt()
+        });
+        for mut c in sens.outer_iter_mut() {
+            c.zip_mut_with(&norm, |z, n| *z /= *n);
+        }
+        let mask = SamplingSpec::new(Pattern::VariableDensity, 4.0, 16)
+            .expect("valid pattern")
+            .mask(FRAMES, ROWS)
+            .expect("valid mask");
+        let mut kspace = Array4::from_shape_fn((COILS, FRAMES, ROWS, COLS), |_| {
+            Complex32::new(rnd(), rnd())
+        });
+        mask.apply(kspace.view_mut());
+        Slice {
+            sens,
+            mask,
+            kspace,
+            fft: CenteredFft2::new(ROWS, COLS),
+        }
+    }
+
+    fn input(&self) -> ReconInput<'_> {
+        ReconInput {
+            kspace: self.kspace.view(),
+            mask: &self.mask,
+            fft: &self.fft,
+            sens: Some(self.sens.view()),
+        }
+    }
+}
+
+/// Forward and inverse 1-D FFTs of `planes` contiguous planes of `lines × n` values,
+/// planes in parallel: the transform work of the normal operator (n = rows) or of the
+/// temporal transform (n = frames).
+fn line_fft_pair(fft: &LineFft, planes: usize, lines: usize) {
+    (0..planes).into_par_iter().for_each_init(
+        || {
+            (
+                vec![Complex32::new(1.0, 0.0); lines * fft.len()],
+                Vec::new(),
+            )
+        },
+        |(buf, scratch), _| {
+            fft.process(buf, Direction::Forward, scratch);
+            fft.process(buf, Direction::Inverse, scratch);
+            black_box(&buf);
+        },
+    );
+}
+
+fn measure(c: &mut Criterion, medians: &Medians) {
+    let slice = Slice::new();
+    let input = slice.input();
+    let mut group = c.benchmark_group("recon");
+    group
+        .sample_size(10)
+        .warm_up_time(Duration::from_secs(1))
+        .measurement_time(Duration::from_secs(4));
+    let mut timed = |name: String, f: &mut dyn FnMut()| {
+        group.bench_function(&name, |b| {
+            b.iter_custom(|n| {
+                let t = Instant::now();
+                for _ in 0..n {
+                    f();
+                }
+                let d = t.elapsed();
+                medians
+                    .borrow_mut()
+                    .entry(name.clone())
+                    .or_default()
+                    .push(d.as_secs_f64() / n as f64);
+                d
+            })
+        });
+    };
+    for id in METHODS {
+        let m = recon::by_id(id).expect("registered");
+        for n in [1, ITERS] {
+            let given = [
+                ("iterations".to_string(), n.to_string()),
+                ("tolerance".to_string(), "0".to_string()),
+            ];
+            let p = Params::resolve(m, &given).expect("valid parameters");
+            timed(format!("{id}/{n}"), &mut || {
+                black_box(recon::run(m, &input, &p).expect("reconstructs"));
+            });
+        }
+    }
+    let op = Encoding::new(slice.sens.view(), &slice.mask.lines, &slice.fft).expect("valid");
+    let x = Array3::from_elem((FRAMES, COLS, ROWS), Complex32::new(1.0, 0.5));
+    let mut out = Array3::<Complex32>::zeros((FRAMES, COLS, ROWS));
+    timed("operator/normal".into(), &mut || {
+        op.normal_lines(x.view(), out.view_mut(), |_, _, _, _| ());
+    });
+    let ky = LineFft::new(ROWS);
+    timed("fft/normal-operator".into(), &mut || {
+        line_fft_pair(&ky, COILS * FRAMES, COLS)
+    });
+    let t = LineFft::new(FRAMES);
+    timed("fft/temporal".into(), &mut || line_fft_pair(&t, COLS, ROWS));
+    group.finish();
+}
+
+fn python(backend: &str) -> Option<serde_json::Value> {
+    let script = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/benches/reference/recon_ref.py"
+    );
+    let out = Command::new("python3")
+        .args([script, backend])
+        .args([COILS, FRAMES, ROWS, COLS, ITERS].map(|v| v.to_string()))
+        .output()
+        .ok()?;
+    if !out.status.success() {
+        eprintln!(
+            "python reference ({backend}) did not run: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        return None;
+    }
+    serde_json::from_slice(&out.stdout).ok()
+}
+
+fn median(v: &[f64]) -> f64 {
+    let mut v = v.to_vec();
     v.sort_by(f64::total_cmp);
     v[v.len() / 2]
 }
 
 fn main() {
-    let mut state = 1u64;
-    let mut rnd = || {
-        state = cinegauge::rng::stream_seed(state, 7);
-        (state >> 11) as f32 / (1u64 << 53) as f32 - 0.5
+    let medians = Medians::default();
+    let mut c = Criterion::default().configure_from_args();
+    measure(&mut c, &medians);
+    c.final_summary();
+    let m = medians.borrow();
+    let Some(get) = METHODS
+        .iter()
+        .all(|id| m.contains_key(&format!("{id}/{ITERS}")))
+        .then_some(|k: &str| median(&m[k]))
+    else {
+        return; // a filtered run (`cargo bench -- NAME`): no table
     };
-    let mut sens = Array3::from_shape_fn((COILS, ROWS, COLS), |_| Complex32::new(rnd(), rnd()));
-    let norm = sens.map_axis(Axis(0), |v| {
-        v.iter().map(|z| z.norm_sqr()).sum::<f32>().sqrt()
-    });
-    for mut c in sens.outer_iter_mut() {
-        c.zip_mut_with(&norm, |z, n| *z /= *n);
-    }
-    let mask = SamplingSpec::new(Pattern::VariableDensity, 4.0, 16)
-        .unwrap()
-        .mask(FRAMES, ROWS)
-        .unwrap();
-    let mut k = Array4::from_shape_fn((COILS, FRAMES, ROWS, COLS), |_| {
-        Complex32::new(rnd(), rnd())
-    });
-    mask.apply(k.view_mut());
-    let fft = CenteredFft2::new(ROWS, COLS);
-    let input = ReconInput {
-        kspace: k.view(),
-        mask: &mask,
-        fft: &fft,
-        sens: Some(sens.view()),
-    };
+    let per_it =
+        |id: &str| (get(&format!("{id}/{ITERS}")) - get(&format!("{id}/1"))) / (ITERS - 1) as f64;
+    let (fft_op, fft_t) = (get("fft/normal-operator"), get("fft/temporal"));
 
-    // FFT time of one normal-operator application: every coil × frame plane forward and back.
-    let mut planes = k.clone();
-    let fft_pair = median(
-        (0..3)
-            .map(|_| {
-                let t = Instant::now();
-                let flat = planes
-                    .view_mut()
-                    .into_shape_with_order((COILS * FRAMES, ROWS, COLS))
-                    .unwrap();
-                fft.process_batch(flat, Direction::Forward);
-                let flat = planes
-                    .view_mut()
-                    .into_shape_with_order((COILS * FRAMES, ROWS, COLS))
-                    .unwrap();
-                fft.process_batch(flat, Direction::Inverse);
-                t.elapsed().as_secs_f64()
-            })
-            .collect(),
+    let backends = ["numpy", "scipy", "scipy-ky"].map(|b| (b, python(b)));
+    println!();
+    println!("one slice: {COILS} coils × {FRAMES} frames × {ROWS} × {COLS}, {ITERS} iterations, criterion medians");
+    println!(
+        "normal operator EᴴE: {:.2} ms, of which its FFTs {:.2} ms ({:.0}%); temporal FFT pair: {:.2} ms",
+        get("operator/normal") * 1e3,
+        fft_op * 1e3,
+        100.0 * fft_op / get("operator/normal"),
+        fft_t * 1e3
     );
-    let tf = TemporalFft::new(FRAMES);
-    let mut series = Array3::<Complex32>::zeros((FRAMES, ROWS, COLS));
-    let temporal_pair = median(
-        (0..3)
-            .map(|_| {
-                let t = Instant::now();
-                tf.process(series.view_mut(), Direction::Forward);
-                tf.process(series.view_mut(), Direction::Inverse);
-                t.elapsed().as_secs_f64()
-            })
-            .collect(),
+    println!(
+        "{:<16} {:>10} {:>9} {:>11} {:>11} {:>11} {:>13} {:>13}",
+        "method",
+        "Rust ms/it",
+        "FFT share",
+        "numpy ms/it",
+        "scipy ms/it",
+        "scipy-ky",
+        "faster Py/Rust",
+        "scipy-ky/Rust"
     );
-
-    let per_iteration = |id: &str, extra: &[(&str, &str)]| -> f64 {
-        let m = recon::by_id(id).unwrap();
-        let run = |n: usize| {
-            let mut given = vec![
-                ("iterations".to_string(), n.to_string()),
-                ("tolerance".to_string(), "0".to_string()),
-            ];
-            given.extend(extra.iter().map(|(a, b)| (a.to_string(), b.to_string())));
-            let p = Params::resolve(m, &given).unwrap();
-            let t = Instant::now();
-            recon::run(m, &input, &p).unwrap();
-            t.elapsed().as_secs_f64()
+    for id in METHODS {
+        let t = per_it(id);
+        let fft = if id == "cg-sense" {
+            fft_op
+        } else {
+            fft_op + fft_t
         };
-        median(
-            (0..3)
-                .map(|_| (run(ITERS) - run(1)) / (ITERS - 1) as f64)
-                .collect(),
-        )
-    };
-    let rust = [
-        ("cg-sense", per_iteration("cg-sense", &[]), fft_pair),
-        (
-            "xf-sparse",
-            per_iteration("xf-sparse", &[]),
-            fft_pair + temporal_pair,
-        ),
-        (
-            "low-rank-sparse",
-            per_iteration("low-rank-sparse", &[]),
-            fft_pair + temporal_pair,
-        ),
-    ];
-
-    let python = |backend: &str| -> Option<serde_json::Value> {
-        let script = concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/benches/reference/recon_ref.py"
-        );
-        let out = Command::new("python3")
-            .args([script, backend])
-            .args([COILS, FRAMES, ROWS, COLS, ITERS].map(|v| v.to_string()))
-            .output()
-            .ok()?;
-        if !out.status.success() {
-            eprintln!(
-                "python reference ({backend}) did not run: {}",
-                String::from_utf8_lossy(&out.stderr)
-            );
-            return None;
-        }
-        serde_json::from_slice(&out.stdout).ok()
-    };
-    let numpy = python("numpy");
-    let scipy = python("scipy");
-
-    println!("one slice: {COILS} coils × {FRAMES} frames × {ROWS} × {COLS}, {ITERS} iterations, median of 3");
-    println!(
-        "FFT of all planes forward + inverse: {:.2} ms (Rust)",
-        fft_pair * 1e3
-    );
-    if let (Some(n), Some(s)) = (&numpy, &scipy) {
-        println!(
-            "                                    {:.2} ms (numpy.fft), {:.2} ms (scipy.fft, all cores)",
-            n["fft_pair_s"].as_f64().unwrap_or(f64::NAN) * 1e3,
-            s["fft_pair_s"].as_f64().unwrap_or(f64::NAN) * 1e3
-        );
-    }
-    println!(
-        "{:<16} {:>12} {:>10} {:>14} {:>14} {:>16}",
-        "method", "Rust ms/it", "FFT share", "numpy ms/it", "scipy ms/it", "faster Py / Rust"
-    );
-    for (id, t, fft_t) in rust {
         let key = format!("{}_s", id.replace('-', "_"));
-        let n = numpy.as_ref().and_then(|v| v[&key].as_f64());
-        let s = scipy.as_ref().and_then(|v| v[&key].as_f64());
-        let best = match (n, s) {
+        let py: Vec<Option<f64>> = backends
+            .iter()
+            .map(|(_, v)| v.as_ref().and_then(|v| v[&key].as_f64()))
+            .collect();
+        let show = |v: Option<f64>| v.map_or("-".into(), |x| format!("{:.2}", x * 1e3));
+        let ratio = |v: Option<f64>| v.map_or("-".into(), |x| format!("{:.1}×", x / t));
+        let best = match (py[0], py[1]) {
             (Some(a), Some(b)) => Some(a.min(b)),
             (a, b) => a.or(b),
         };
-        let show = |v: Option<f64>| {
-            v.map(|x| format!("{:.2}", x * 1e3))
-                .unwrap_or_else(|| "-".into())
-        };
         println!(
-            "{:<16} {:>12.2} {:>9.0}% {:>14} {:>14} {:>16}",
+            "{:<16} {:>10.2} {:>8.0}% {:>11} {:>11} {:>11} {:>13} {:>13}",
             id,
             t * 1e3,
-            100.0 * (fft_t / t).min(1.0),
-            show(n),
-            show(s),
-            best.map(|b| format!("{:.1}×", b / t))
-                .unwrap_or_else(|| "-".into())
+            100.0 * fft / t,
+            show(py[0]),
+            show(py[1]),
+            show(py[2]),
+            ratio(best),
+            ratio(py[2])
         );
     }
 }

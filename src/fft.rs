@@ -159,13 +159,73 @@ fn transpose(src: &[Complex32], dst: &mut [Complex32], rows: usize, cols: usize,
     }
 }
 
-/// Orthonormal 1-D FFT along the frame axis of `[frame, row, col]` arrays: the temporal
-/// Fourier (x-f) transform. Not shifted: frequency 0 is index 0. Scaled by `1/sqrt(frames)`.
+/// Unscaled 1-D FFTs of one length over consecutive contiguous lines, one rustfft call per
+/// batch (the building block of the readout-separable operator and the temporal FFT).
 #[derive(Clone)]
-pub struct TemporalFft {
-    frames: usize,
+pub struct LineFft {
+    n: usize,
     fwd: Arc<dyn Fft<f32>>,
     inv: Arc<dyn Fft<f32>>,
+}
+
+impl LineFft {
+    /// Plans transforms of length `n`.
+    ///
+    /// # Panics
+    /// If `n` is zero.
+    pub fn new(n: usize) -> Self {
+        assert!(n > 0, "FFT length must be non-zero");
+        let mut planner = FftPlanner::<f32>::new();
+        LineFft {
+            n,
+            fwd: planner.plan_fft_forward(n),
+            inv: planner.plan_fft_inverse(n),
+        }
+    }
+
+    /// Line length.
+    pub fn len(&self) -> usize {
+        self.n
+    }
+
+    /// Always false: a planned length is non-zero.
+    pub fn is_empty(&self) -> bool {
+        false
+    }
+
+    /// Transforms every line of `lines` (length a multiple of [`len`](Self::len)) in
+    /// place, unscaled and unshifted.
+    ///
+    /// # Panics
+    /// If the buffer length is not a multiple of the line length.
+    pub fn process(&self, lines: &mut [Complex32], dir: Direction, scratch: &mut Vec<Complex32>) {
+        assert_eq!(
+            lines.len() % self.n,
+            0,
+            "buffer of {} values is not a whole number of {}-point lines",
+            lines.len(),
+            self.n
+        );
+        let fft = match dir {
+            Direction::Forward => &self.fwd,
+            Direction::Inverse => &self.inv,
+        };
+        let need = fft.get_inplace_scratch_len();
+        if scratch.len() < need {
+            scratch.resize(need, Complex32::default());
+        }
+        fft.process_with_scratch(lines, &mut scratch[..need]);
+    }
+}
+
+/// Orthonormal 1-D FFT along the frame axis of `[frame, a, b]` arrays: the temporal
+/// Fourier (x-f) transform. Not shifted: frequency 0 is index 0. Scaled by `1/sqrt(frames)`.
+///
+/// Works block by block: for each index of axis 1 (in parallel) the `[frame, b]` block is
+/// gathered into `b` contiguous time series, transformed in one call and scattered back.
+#[derive(Clone)]
+pub struct TemporalFft {
+    lines: LineFft,
 }
 
 impl TemporalFft {
@@ -175,45 +235,71 @@ impl TemporalFft {
     /// If `frames` is zero.
     pub fn new(frames: usize) -> Self {
         assert!(frames > 0, "temporal FFT needs at least one frame");
-        let mut planner = FftPlanner::<f32>::new();
         TemporalFft {
-            frames,
-            fwd: planner.plan_fft_forward(frames),
-            inv: planner.plan_fft_inverse(frames),
+            lines: LineFft::new(frames),
         }
     }
 
-    /// Transforms every pixel's time course of `[frame, row, col]` data in place.
+    /// Transforms every pixel's time course of `[frame, a, b]` data in place.
     ///
     /// # Panics
     /// If the frame axis does not match the planned length.
-    pub fn process(&self, mut data: ArrayViewMut3<Complex32>, dir: Direction) {
+    pub fn process(&self, data: ArrayViewMut3<Complex32>, dir: Direction) {
+        self.blocks(data, |spectra, s| {
+            let scale = 1.0 / (self.lines.len() as f32).sqrt();
+            self.lines.process(spectra, dir, s);
+            spectra.iter_mut().for_each(|z| *z *= scale);
+        });
+    }
+
+    /// Transforms to x-f, applies `op` to the orthonormal spectra (each pixel's spectrum a
+    /// contiguous run of `frames` values) and transforms back, in one pass over the data.
+    ///
+    /// # Panics
+    /// If the frame axis does not match the planned length.
+    pub fn map_spectra(
+        &self,
+        data: ArrayViewMut3<Complex32>,
+        op: impl Fn(&mut [Complex32]) + Sync + Send,
+    ) {
+        let scale = 1.0 / self.lines.len() as f32;
+        self.blocks(data, |spectra, s| {
+            self.lines.process(spectra, Direction::Forward, s);
+            spectra.iter_mut().for_each(|z| *z *= scale.sqrt());
+            op(spectra);
+            self.lines.process(spectra, Direction::Inverse, s);
+            spectra.iter_mut().for_each(|z| *z *= scale.sqrt());
+        });
+    }
+
+    /// Runs `op` on every `[frame, b]` block gathered as `b` contiguous time series.
+    fn blocks(
+        &self,
+        mut data: ArrayViewMut3<Complex32>,
+        op: impl Fn(&mut [Complex32], &mut Vec<Complex32>) + Sync + Send,
+    ) {
+        let nf = self.lines.len();
         assert_eq!(
             data.dim().0,
-            self.frames,
-            "temporal FFT planned for {} frames, data has {}",
-            self.frames,
+            nf,
+            "temporal FFT planned for {nf} frames, data has {}",
             data.dim().0
         );
-        let fft = match dir {
-            Direction::Forward => &self.fwd,
-            Direction::Inverse => &self.inv,
-        };
-        let scale = 1.0 / (self.frames as f32).sqrt();
         data.axis_iter_mut(Axis(1)).into_par_iter().for_each_init(
             FftScratch::default,
-            |s, mut rows| {
-                for mut lane in rows.lanes_mut(Axis(0)) {
-                    s.line.clear();
-                    s.line.extend(lane.iter().copied());
-                    let need = fft.get_inplace_scratch_len();
-                    if s.fft.len() < need {
-                        s.fft.resize(need, Complex32::default());
+            |s, mut block| {
+                let nb = block.ncols();
+                s.line.resize(nf * nb, Complex32::default());
+                for (f, row) in block.outer_iter().enumerate() {
+                    for (b, v) in row.iter().enumerate() {
+                        s.line[b * nf + f] = *v;
                     }
-                    fft.process_with_scratch(&mut s.line, &mut s.fft[..need]);
-                    lane.iter_mut()
-                        .zip(&s.line)
-                        .for_each(|(o, v)| *o = *v * scale);
+                }
+                op(&mut s.line, &mut s.fft);
+                for (f, mut row) in block.outer_iter_mut().enumerate() {
+                    for (b, v) in row.iter_mut().enumerate() {
+                        *v = s.line[b * nf + f];
+                    }
                 }
             },
         );

@@ -7,7 +7,7 @@ mod common;
 use cinegauge::demo;
 use cinegauge::fft::{CenteredFft2, Direction, TemporalFft};
 use cinegauge::phantom::{coils::sensitivities, Phantom, PhantomSpec};
-use cinegauge::recon::operator::{dot, Encoding};
+use cinegauge::recon::operator::{dot, transpose_planes, Encoding};
 use cinegauge::recon::{self, Params, ReconError, ReconInput};
 use cinegauge::sampling::{Pattern, SamplingMask, SamplingSpec};
 use ndarray::{Array3, Array4, Axis};
@@ -78,6 +78,45 @@ fn encoding_operator_passes_the_dot_product_test() {
             (lhs - rhs).norm() <= 1e-5 * scale,
             "{nf}×{rows}×{cols}: {lhs} vs {rhs}"
         );
+    }
+}
+
+#[test]
+fn readout_separable_normal_operator_equals_adjoint_of_forward() {
+    // `normal_lines` skips the kx transforms and the centring shifts (see the operator's
+    // module doc); it must agree with the full 2-D Eᴴ(E x) on odd and even matrix sizes.
+    // Tolerance 1e-5 relative: both are f32 FFT chains of a few hundred operations.
+    let mut r = common::rng(12);
+    for &(nf, rows, cols, nc) in &[(3usize, 17usize, 12usize, 4usize), (4, 16, 9, 3)] {
+        let sens = Array3::from_shape_fn((nc, rows, cols), |_| crand(&mut r));
+        let mask = SamplingSpec::new(Pattern::VariableDensity, 3.0, 2)
+            .unwrap()
+            .with_rng_seed(9)
+            .mask(nf, rows)
+            .unwrap();
+        let fft = CenteredFft2::new(rows, cols);
+        let op = Encoding::new(sens.view(), &mask.lines, &fft).unwrap();
+        let mut ws = op.workspace();
+        let x = Array3::from_shape_fn((nf, rows, cols), |_| crand(&mut r));
+        let ex = op.forward(x.view(), &mut ws);
+        let mut full = Array3::<Complex32>::zeros((nf, rows, cols));
+        op.adjoint(ex.view(), full.view_mut(), &mut ws);
+        let xl = transpose_planes(x.view());
+        let mut out = Array3::<Complex32>::zeros(xl.dim());
+        op.normal_lines(xl.view(), out.view_mut(), |_, _, _, _| ());
+        let fast = transpose_planes(out.view());
+        let err: f64 = full
+            .iter()
+            .zip(fast.iter())
+            .map(|(a, b)| f64::from((*a - *b).norm_sqr()))
+            .sum::<f64>()
+            .sqrt();
+        let size: f64 = full
+            .iter()
+            .map(|a| f64::from(a.norm_sqr()))
+            .sum::<f64>()
+            .sqrt();
+        assert!(err <= 1e-5 * size, "{rows}×{cols}: error {err} of {size}");
     }
 }
 
@@ -453,4 +492,42 @@ fn grappa_restores_noise_free_data_at_r2() {
         .unwrap();
     let e = run_on(g, k.view(), &vd, &fft, None, &Params::defaults(g)).unwrap_err();
     assert!(e.to_string().contains("equispaced"), "{e}");
+}
+
+#[test]
+fn singular_value_thresholding_matches_the_analytic_result() {
+    // Analytic: for C = U Σ Vᴴ with orthonormal U (pixels) and V (frames), SVT with
+    // threshold τ returns U max(Σ − τ, 0) Vᴴ (Cai, Candès & Shen 2010). U and V are
+    // discrete Fourier bases, so the SVD is known exactly. Tolerance 1e-4 of ‖C‖: f32 data
+    // through an f64 eigen-decomposition of the Gram matrix.
+    let (nf, na, nb) = (5usize, 4usize, 6usize);
+    let n = na * nb;
+    let sigma = [10.0f64, 6.0, 3.0, 1.0, 0.5];
+    let rel = 0.25; // τ = 2.5
+    let basis = |k: usize, i: usize, len: usize| {
+        let ph = 2.0 * std::f64::consts::PI * (k * i) as f64 / len as f64;
+        num_complex::Complex64::new(ph.cos(), ph.sin()) / (len as f64).sqrt()
+    };
+    let frame_k = [2usize, 0, 4, 1, 3];
+    let build = |s: &dyn Fn(f64) -> f64| {
+        Array3::from_shape_fn((nf, na, nb), |(f, a, b)| {
+            let p = a * nb + b;
+            let v: num_complex::Complex64 = (0..nf)
+                .map(|k| basis(k, p, n) * s(sigma[k]) * basis(frame_k[k], f, nf).conj())
+                .sum();
+            Complex32::new(v.re as f32, v.im as f32)
+        })
+    };
+    let x = build(&|s| s);
+    let want = build(&|s| (s - rel * sigma[0]).max(0.0));
+    let mut got = Array3::<Complex32>::zeros(x.dim());
+    cinegauge::recon::low_rank_sparse::svt(&x, rel, &mut got);
+    let err = want
+        .iter()
+        .zip(got.iter())
+        .map(|(a, b)| f64::from((*a - *b).norm_sqr()))
+        .sum::<f64>()
+        .sqrt();
+    let size = sigma.iter().map(|s| s * s).sum::<f64>().sqrt();
+    assert!(err <= 1e-4 * size, "SVT error {err} (‖C‖ = {size})");
 }

@@ -8,9 +8,11 @@
 
 use ndarray::{Array3, Axis, Zip};
 use num_complex::Complex32;
+use rayon::prelude::*;
 
-use super::operator::{converged, Encoding};
+use super::operator::{converged, transpose_planes, Encoding};
 use super::params::{iterations, tolerance};
+use super::sums;
 use super::{coils, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor};
 
 /// Conjugate-gradient SENSE.
@@ -28,16 +30,22 @@ static PARAMS: [ParamSpec; 3] = [
     },
 ];
 
+/// `Re⟨a_f, b_f⟩` for every frame, frames in parallel.
 fn frame_dots(a: &Array3<Complex32>, b: &Array3<Complex32>) -> Vec<f64> {
-    a.outer_iter()
-        .zip(b.outer_iter())
+    a.axis_iter(Axis(0))
+        .into_par_iter()
+        .zip(b.axis_iter(Axis(0)))
         .map(|(x, y)| {
-            x.iter()
-                .zip(y.iter())
-                .map(|(p, q)| f64::from((p.conj() * q).re))
-                .sum()
+            re_dot(
+                x.as_slice().expect("standard"),
+                y.as_slice().expect("standard"),
+            )
         })
         .collect()
+}
+
+fn re_dot(a: &[Complex32], b: &[Complex32]) -> f64 {
+    sums::dot(a, b).re
 }
 
 impl Reconstructor for CgSense {
@@ -61,57 +69,77 @@ impl Reconstructor for CgSense {
             p.get("tolerance"),
             p.get("lambda") as f32,
         );
-        let (b, mut ws) = op.data_adjoint(input.kspace);
-        let (nf, nr, nc) = b.dim();
+        let b = op.data_adjoint_lines(input.kspace);
+        let nf = b.dim().0;
         let b_norm = frame_dots(&b, &b)
             .iter()
             .sum::<f64>()
             .sqrt()
             .max(f64::MIN_POSITIVE);
-        let mut x = Array3::<Complex32>::zeros((nf, nr, nc));
+        let mut x = Array3::<Complex32>::zeros(b.dim());
         let mut r = b.clone();
         let mut d = r.clone();
-        let mut q = Array3::<Complex32>::zeros((nf, nr, nc));
+        let mut q = Array3::<Complex32>::zeros(b.dim());
         let mut rs = frame_dots(&r, &r);
         let mut residuals = Vec::new();
         for _ in 0..iters {
-            op.normal(d.view(), q.view_mut(), &mut ws);
-            if lambda > 0.0 {
-                Zip::from(&mut q).and(&d).for_each(|q, d| *q += *d * lambda);
-            }
-            let dq = frame_dots(&d, &q);
-            for f in 0..nf {
-                let alpha = if dq[f] > 0.0 {
-                    (rs[f] / dq[f]) as f32
-                } else {
-                    0.0
-                };
-                Zip::from(x.index_axis_mut(Axis(0), f))
-                    .and(r.index_axis_mut(Axis(0), f))
-                    .and(d.index_axis(Axis(0), f))
-                    .and(q.index_axis(Axis(0), f))
-                    .for_each(|x, r, d, q| {
-                        *x += *d * alpha;
-                        *r -= *q * alpha;
-                    });
-            }
-            let rs_new = frame_dots(&r, &r);
+            // q = (EᴴE + λ) d and ⟨d, q⟩ per frame, in the operator's last pass.
+            let parts = op.normal_lines(d.view(), q.view_mut(), |_, _, q, d| {
+                if lambda > 0.0 {
+                    q.iter_mut().zip(d).for_each(|(q, d)| *q += *d * lambda);
+                }
+                re_dot(d, q)
+            });
+            let dq: Vec<f64> = (0..nf)
+                .map(|f| parts.iter().skip(f).step_by(nf).sum())
+                .collect();
+            // x += α d, r −= α q and the new ‖r‖² per frame, in one pass.
+            let rs_new: Vec<f64> = x
+                .axis_iter_mut(Axis(0))
+                .into_par_iter()
+                .zip(r.axis_iter_mut(Axis(0)))
+                .zip(d.axis_iter(Axis(0)))
+                .zip(q.axis_iter(Axis(0)))
+                .enumerate()
+                .map(|(f, (((mut x, mut r), d), q))| {
+                    let alpha = if dq[f] > 0.0 {
+                        (rs[f] / dq[f]) as f32
+                    } else {
+                        0.0
+                    };
+                    Zip::from(&mut x)
+                        .and(&mut r)
+                        .and(&d)
+                        .and(&q)
+                        .for_each(|x, r, d, q| {
+                            *x += *d * alpha;
+                            *r -= *q * alpha;
+                        });
+                    let r = r.as_slice().expect("standard layout");
+                    re_dot(r, r)
+                })
+                .collect();
             residuals.push(rs_new.iter().sum::<f64>().sqrt() / b_norm);
-            for f in 0..nf {
-                let beta = if rs[f] > 0.0 {
-                    (rs_new[f] / rs[f]) as f32
-                } else {
-                    0.0
-                };
-                Zip::from(d.index_axis_mut(Axis(0), f))
-                    .and(r.index_axis(Axis(0), f))
-                    .for_each(|d, r| *d = *r + *d * beta);
-            }
+            d.axis_iter_mut(Axis(0))
+                .into_par_iter()
+                .zip(r.axis_iter(Axis(0)))
+                .enumerate()
+                .for_each(|(f, (mut d, r))| {
+                    let beta = if rs[f] > 0.0 {
+                        (rs_new[f] / rs[f]) as f32
+                    } else {
+                        0.0
+                    };
+                    Zip::from(&mut d)
+                        .and(&r)
+                        .for_each(|d, r| *d = *r + *d * beta);
+                });
             rs = rs_new;
             if converged(&residuals, tol) {
                 break;
             }
         }
+        let x = transpose_planes(x.view());
         Ok(ReconOutput {
             images: x.mapv(|z| z.norm()),
             iterations: residuals.len(),

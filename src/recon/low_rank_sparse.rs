@@ -10,14 +10,17 @@
 //! `L = M V diag(max(σ − τ, 0)/σ) Vᴴ` (f64 Hermitian eigen-decomposition by nalgebra).
 
 use nalgebra::{DMatrix, SymmetricEigen};
-use ndarray::{Array2, Array3, Zip};
+use ndarray::{Array2, Array3, Axis, Zip};
 use num_complex::{Complex32, Complex64};
 use rayon::prelude::*;
 
-use super::operator::{converged, Encoding};
+use super::operator::{converged, gradient_step, transpose_planes, Encoding};
 use super::params::{iterations, tolerance};
-use super::sparsity::{relative_change, xf_peak, xf_shrink};
-use super::{coils, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor};
+use super::sparsity::{xf_peak, xf_shrink};
+use super::sums::{self, relative_change};
+use super::{
+    coils, kernels, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor,
+};
 use crate::fft::TemporalFft;
 
 /// Low-rank plus sparse.
@@ -42,51 +45,54 @@ static PARAMS: [ParamSpec; 4] = [
     },
 ];
 
-/// Singular-value thresholding of the Casorati matrix of `x` (`[frame, row, col]`) with
+/// Pixels per block of the SVT's Gram and recombination passes (all frames of a block,
+/// 24 × 512 complex values, stay in cache).
+const PIXELS: usize = 512;
+
+/// Singular-value thresholding of the Casorati matrix of `x` (`[frame, a, b]`) with
 /// threshold `rel × σ_max`, written to `out`.
+///
+/// Both passes go block by block over the pixels, in parallel: the Gram matrix `MᴴM` as a
+/// sum of per-block Gram matrices (added in block order, so the result does not depend on
+/// the thread count), and `L = M W` with `W = V diag(max(σ − τ, 0)/σ) Vᴴ`.
 pub fn svt(x: &Array3<Complex32>, rel: f64, out: &mut Array3<Complex32>) {
-    let (nf, nr, nc) = x.dim();
-    let n = nr * nc;
+    let (nf, na, nb) = x.dim();
+    let n = na * nb;
     let m = x
         .view()
         .into_shape_with_order((nf, n))
         .expect("standard layout");
-    // Gram matrix rows in parallel; each entry accumulates f32 products in chunks of 256
-    // pixels and sums the chunks in f64, which keeps f64 accuracy at f32 speed.
-    let rows: Vec<Vec<Complex64>> = (0..nf)
+    let pairs: Vec<(usize, usize)> = (0..nf).flat_map(|i| (i..nf).map(move |j| (i, j))).collect();
+    let blocks: Vec<Vec<Complex64>> = m
+        .axis_chunks_iter(Axis(1), PIXELS)
         .into_par_iter()
-        .map(|i| {
-            let a = m.row(i);
-            let a = a.as_slice().expect("standard layout");
-            (0..nf)
-                .map(|j| {
-                    if j < i {
-                        return Complex64::default();
-                    }
-                    let b = m.row(j);
-                    let b = b.as_slice().expect("standard layout");
-                    a.chunks(256)
-                        .zip(b.chunks(256))
-                        .map(|(ca, cb)| {
-                            let s: Complex32 = ca.iter().zip(cb).map(|(x, y)| x.conj() * y).sum();
-                            Complex64::new(s.re.into(), s.im.into())
-                        })
-                        .sum()
+        .map(|blk| {
+            pairs
+                .iter()
+                .map(|&(i, j)| {
+                    let (a, b) = (blk.row(i), blk.row(j));
+                    sums::dot(
+                        a.as_slice().expect("contiguous block row"),
+                        b.as_slice().expect("contiguous block row"),
+                    )
                 })
                 .collect()
         })
         .collect();
     let mut gram = DMatrix::<Complex64>::zeros(nf, nf);
+    for blk in &blocks {
+        for (&(i, j), v) in pairs.iter().zip(blk) {
+            gram[(i, j)] += *v;
+        }
+    }
     for i in 0..nf {
-        for j in i..nf {
-            gram[(i, j)] = rows[i][j];
-            gram[(j, i)] = rows[i][j].conj();
+        for j in 0..i {
+            gram[(i, j)] = gram[(j, i)].conj();
         }
     }
     let eig = SymmetricEigen::new(gram);
     let sigma: Vec<f64> = eig.eigenvalues.iter().map(|l| l.max(0.0).sqrt()).collect();
     let tau = rel * sigma.iter().cloned().fold(0.0, f64::max);
-    // W = V diag(w) Vᴴ with w = max(σ − τ, 0)/σ, then L = W-combination of frames:
     // L[f'] = Σ_f W[f, f'] · M[f]  (Casorati columns are frames).
     let v = &eig.eigenvectors;
     let w: Vec<f64> = sigma
@@ -99,28 +105,26 @@ pub fn svt(x: &Array3<Complex32>, rel: f64, out: &mut Array3<Complex32>) {
             }
         })
         .collect();
-    let mut wm = Array2::<Complex32>::zeros((nf, nf));
-    for a in 0..nf {
-        for b in 0..nf {
-            let s: Complex64 = (0..nf).map(|k| v[(a, k)] * w[k] * v[(b, k)].conj()).sum();
-            wm[(a, b)] = Complex32::new(s.re as f32, s.im as f32);
-        }
-    }
+    let wm = Array2::from_shape_fn((nf, nf), |(a, b)| {
+        let s: Complex64 = (0..nf).map(|k| v[(a, k)] * w[k] * v[(b, k)].conj()).sum();
+        Complex32::new(s.re as f32, s.im as f32)
+    });
     let mut o = out
         .view_mut()
         .into_shape_with_order((nf, n))
         .expect("standard layout");
-    o.axis_iter_mut(ndarray::Axis(0))
+    o.axis_chunks_iter_mut(Axis(1), PIXELS)
         .into_par_iter()
-        .enumerate()
-        .for_each(|(fo, mut row)| {
-            row.fill(Complex32::default());
-            for fi in 0..nf {
-                let c = wm[(fi, fo)];
-                if c != Complex32::default() {
-                    Zip::from(&mut row)
-                        .and(m.row(fi))
-                        .for_each(|o, a| *o += *a * c);
+        .zip(m.axis_chunks_iter(Axis(1), PIXELS))
+        .for_each(|(mut ob, mb)| {
+            for (fo, mut row) in ob.outer_iter_mut().enumerate() {
+                let row = row.as_slice_mut().expect("contiguous block row");
+                row.fill(Complex32::default());
+                for (fi, src) in mb.outer_iter().enumerate() {
+                    let c = wm[(fi, fo)];
+                    if c != Complex32::default() {
+                        kernels::scaled_add(row, c, src.as_slice().expect("contiguous block row"));
+                    }
                 }
             }
         });
@@ -142,7 +146,7 @@ impl Reconstructor for LowRankSparse {
     fn reconstruct(&self, input: &ReconInput, p: &Params) -> Result<ReconOutput, ReconError> {
         let sens = coils::for_input(input, self.id())?;
         let op = Encoding::new(sens.view(), &input.mask.lines, input.fft)?;
-        let (b, mut ws) = op.data_adjoint(input.kspace);
+        let b = op.data_adjoint_lines(input.kspace);
         let (nf, nr, nc) = b.dim();
         let tf = TemporalFft::new(nf);
         let lambda_s = p.get("lambda_s") as f32 * xf_peak(&b, &tf);
@@ -155,26 +159,23 @@ impl Reconstructor for LowRankSparse {
         let mut g = Array3::<Complex32>::zeros((nf, nr, nc));
         let mut residuals = Vec::new();
         for _ in 0..iters {
+            // tmp = M − S and S = M − L_prev in one pass.
             Zip::from(&mut tmp)
-                .and(&m)
-                .and(&s)
-                .for_each(|t, m, s| *t = *m - *s);
-            svt(&tmp, lambda_l, &mut l);
-            Zip::from(&mut s)
+                .and(&mut s)
                 .and(&m)
                 .and(&l_prev)
-                .for_each(|s, m, lp| *s = *m - *lp);
+                .par_for_each(|t, s, m, lp| {
+                    *t = *m - *s;
+                    *s = *m - *lp;
+                });
+            svt(&tmp, lambda_l, &mut l);
             xf_shrink(s.view_mut(), lambda_s, &tf);
             Zip::from(&mut tmp)
                 .and(&l)
                 .and(&s)
-                .for_each(|t, l, s| *t = *l + *s);
-            op.normal(tmp.view(), g.view_mut(), &mut ws);
+                .par_for_each(|t, l, s| *t = *l + *s);
             // M_new = (L + S) − (EᴴE(L + S) − Eᴴy); keep the old M in g for the change.
-            Zip::from(&mut g)
-                .and(&tmp)
-                .and(&b)
-                .for_each(|g, t, b| *g = *t - (*g - *b));
+            op.normal_lines(tmp.view(), g.view_mut(), gradient_step(&b));
             residuals.push(relative_change(&g, &m));
             std::mem::swap(&mut m, &mut g);
             std::mem::swap(&mut l_prev, &mut l);
@@ -185,7 +186,8 @@ impl Reconstructor for LowRankSparse {
         Zip::from(&mut tmp)
             .and(&l_prev)
             .and(&s)
-            .for_each(|t, l, s| *t = *l + *s);
+            .par_for_each(|t, l, s| *t = *l + *s);
+        let tmp = transpose_planes(tmp.view());
         Ok(ReconOutput {
             images: tmp.mapv(|z| z.norm()),
             iterations: residuals.len(),

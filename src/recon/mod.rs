@@ -8,11 +8,13 @@
 mod cg_sense;
 pub mod coils;
 mod grappa;
+mod kernels;
 pub mod low_rank_sparse;
 pub mod operator;
 pub mod params;
 mod reference;
 mod sparsity;
+pub mod sums;
 mod temporal_tv;
 mod xf_sparse;
 mod zero_filled;

@@ -7,6 +7,15 @@
 //! `F` is the centred orthonormal 2-D FFT and `M_f` keeps the lines acquired in frame `f`.
 //! With sensitivities normalised to `Σ_c |S_c|² ≤ 1`, `‖EᴴE‖ ≤ 1`, so gradient methods
 //! can take unit steps.
+//!
+//! The iterative methods only need the normal operator `EᴴE`, and since the readout (kx) is
+//! fully sampled, `Fᴴ M_f F = (F_kyᴴ M_f F_ky) ⊗ I_kx`: the kx transforms cancel. Each column
+//! then needs one 1-D FFT along ky and its inverse. The centring shifts cancel too:
+//! `F_kyᴴ M F_ky` of the centred FFT equals `Fᴴ M' F` of the plain FFT with the mask moved to
+//! raw FFT order (`M'[k] = M[(k + ⌊N/2⌋) mod N]`), because that operator is circulant and
+//! commutes with the cyclic `ifftshift`. [`Encoding::normal_lines`] works on images stored
+//! readout-major (`[frame, col, row]`, see [`transpose_planes`]) so every ky line is
+//! contiguous.
 
 use ndarray::{
     Array2, Array3, Array4, ArrayView3, ArrayView4, ArrayViewMut2, ArrayViewMut3, Axis, CowArray,
@@ -15,8 +24,12 @@ use ndarray::{
 use num_complex::Complex32;
 use rayon::prelude::*;
 
-use super::ReconError;
-use crate::fft::{CenteredFft2, Direction, FftScratch};
+use super::{kernels, ReconError};
+use crate::fft::{CenteredFft2, Direction, FftScratch, LineFft};
+
+/// Ky lines per tile of [`Encoding::normal_lines`]: small enough that a tile of every
+/// coil's sensitivities stays in a core's cache (8 coils × 8 lines × 256 rows = 128 KiB).
+pub const TILE: usize = 8;
 
 /// Scratch of the operator: one `[coil, frame, ky, kx]` buffer, reused across iterations.
 pub struct Workspace {
@@ -37,6 +50,13 @@ pub struct Encoding<'a> {
     sens: CowArray<'a, Complex32, Ix3>,
     mask: &'a Array2<bool>,
     fft: &'a CenteredFft2,
+    /// Sensitivities readout-major, `[coil, col, row]`.
+    sens_t: Array3<Complex32>,
+    /// `[frame, raw ky]`: `1/rows` where acquired (the FFT pair's scale folded in), else 0;
+    /// each weight twice (real and imaginary part), see [`kernels::scale`].
+    keep: Array2<f32>,
+    /// 1-D FFTs along ky.
+    ky: LineFft,
 }
 
 impl<'a> Encoding<'a> {
@@ -68,7 +88,27 @@ impl<'a> Encoding<'a> {
         } else {
             CowArray::from(sens.as_standard_layout().into_owned())
         };
-        Ok(Encoding { sens, mask, fft })
+        let (nf, half) = (mask.nrows(), r / 2);
+        let keep = Array2::from_shape_fn((nf, 2 * r), |(f, k)| {
+            if mask[(f, (k / 2 + half) % r)] {
+                1.0 / r as f32
+            } else {
+                0.0
+            }
+        });
+        let sens_t = sens
+            .view()
+            .permuted_axes([0, 2, 1])
+            .as_standard_layout()
+            .into_owned();
+        Ok(Encoding {
+            sens,
+            mask,
+            fft,
+            sens_t,
+            keep,
+            ky: LineFft::new(r),
+        })
     }
 
     /// Coils, frames, rows, cols.
@@ -83,13 +123,13 @@ impl<'a> Encoding<'a> {
         Workspace::new(nc, nf, r, c)
     }
 
-    /// `Eᴴy` of the measured data, and a workspace for the iterations that follow.
-    pub fn data_adjoint(&self, y: ArrayView4<Complex32>) -> (Array3<Complex32>, Workspace) {
+    /// `Eᴴy` of the measured data, readout-major (`[frame, col, row]`).
+    pub fn data_adjoint_lines(&self, y: ArrayView4<Complex32>) -> Array3<Complex32> {
         let mut ws = self.workspace();
         let (_, nf, r, c) = self.dims();
         let mut b = Array3::<Complex32>::zeros((nf, r, c));
         self.adjoint(y, b.view_mut(), &mut ws);
-        (b, ws)
+        transpose_planes(b.view())
     }
 
     /// `y = E x` into the workspace buffer, returned as a view.
@@ -126,15 +166,74 @@ impl<'a> Encoding<'a> {
         self.adjoint_in_place(x, ws);
     }
 
-    /// `out = EᴴE x` (the normal operator), without allocating.
-    pub fn normal(
+    /// `out = EᴴE x` for readout-major images (`[frame, col, row]`, standard layout).
+    ///
+    /// The columns are cut into tiles of [`TILE`] ky lines, processed in parallel; each tile
+    /// runs through all frames and coils while its slice of the sensitivities stays in
+    /// cache. After each (tile, frame) `epilogue(frame, start, out, x)` runs on that piece
+    /// of the frame (values `start..start + len` of the frame's plane) while it is hot; the
+    /// returned values come back in (tile, frame) order, `tile × frames + frame`.
+    ///
+    /// # Panics
+    /// If `x` or `out` is not a standard-layout `[frame, col, row]` array of this operator.
+    pub fn normal_lines<T: Send>(
         &self,
         x: ArrayView3<Complex32>,
-        out: ArrayViewMut3<Complex32>,
-        ws: &mut Workspace,
-    ) {
-        self.forward_into(x, ws);
-        self.adjoint_in_place(out, ws);
+        mut out: ArrayViewMut3<Complex32>,
+        epilogue: impl Fn(usize, usize, &mut [Complex32], &[Complex32]) -> T + Sync + Send,
+    ) -> Vec<T> {
+        let (_, nf, r, c) = self.dims();
+        assert!(
+            x.dim() == (nf, c, r)
+                && out.dim() == (nf, c, r)
+                && x.is_standard_layout()
+                && out.is_standard_layout(),
+            "normal_lines expects standard-layout readout-major [{nf}, {c}, {r}] arrays, got {:?} and {:?}",
+            x.dim(),
+            out.dim()
+        );
+        let sens = self.sens_t.as_slice().expect("standard layout");
+        let keep = &self.keep;
+        let per_tile: Vec<Vec<T>> = out
+            .axis_chunks_iter_mut(Axis(1), TILE)
+            .into_par_iter()
+            .zip(x.axis_chunks_iter(Axis(1), TILE))
+            .enumerate()
+            .map_init(
+                || (Vec::<Complex32>::new(), Vec::<Complex32>::new()),
+                |(buf, scratch), (t, (mut ot, xt))| {
+                    let len = ot.dim().1 * r;
+                    let start = t * TILE * r;
+                    buf.resize(len, Complex32::default());
+                    (0..nf)
+                        .map(|f| {
+                            let mut of = ot.index_axis_mut(Axis(0), f);
+                            let of = of.as_slice_mut().expect("contiguous tile");
+                            let xf = xt.index_axis(Axis(0), f);
+                            let xf = xf.as_slice().expect("contiguous tile");
+                            let keep = keep.row(f);
+                            let keep = keep.as_slice().expect("standard layout");
+                            for (ci, s) in sens.chunks_exact(r * c).enumerate() {
+                                let s = &s[start..start + len];
+                                kernels::mul(buf, s, xf);
+                                self.ky.process(buf, Direction::Forward, scratch);
+                                for line in buf.chunks_exact_mut(r) {
+                                    kernels::scale(line, keep);
+                                }
+                                self.ky.process(buf, Direction::Inverse, scratch);
+                                if ci == 0 {
+                                    kernels::conj_mul(of, s, buf);
+                                } else {
+                                    kernels::conj_mul_add(of, s, buf);
+                                }
+                            }
+                            epilogue(f, start, of, xf)
+                        })
+                        .collect()
+                },
+            )
+            .collect();
+        per_tile.into_iter().flatten().collect()
     }
 
     /// Runs `op(coil, frame, plane, scratch)` on every coil × frame plane of the workspace,
@@ -167,7 +266,7 @@ impl<'a> Encoding<'a> {
         }
     }
 
-    /// Applies `Eᴴ` to the k-space held in the workspace.
+    /// Applies `Eᴴ` to the k-space held in the workspace (zeroing unacquired lines first).
     fn adjoint_in_place(&self, mut x: ArrayViewMut3<Complex32>, ws: &mut Workspace) {
         let (nc, nf, r, c) = self.dims();
         self.each_plane(ws, |_, f, mut plane, scratch| {
@@ -200,6 +299,33 @@ impl<'a> Encoding<'a> {
                 }
             });
     }
+}
+
+/// The piece `start..start + len` of frame `f` of a standard-layout array (the part an
+/// [`Encoding::normal_lines`] epilogue is working on).
+pub fn frame_piece(a: &Array3<Complex32>, f: usize, start: usize, len: usize) -> &[Complex32] {
+    let plane = a.dim().1 * a.dim().2;
+    &a.as_slice().expect("standard layout")[f * plane + start..f * plane + start + len]
+}
+
+/// Epilogue of a unit gradient step on `½‖E x − y‖²` given `b = Eᴴy`: turns `EᴴE x` into
+/// `x − (EᴴE x − b)`.
+pub fn gradient_step(
+    b: &Array3<Complex32>,
+) -> impl Fn(usize, usize, &mut [Complex32], &[Complex32]) + Sync + Send + '_ {
+    move |f, start, g, x| {
+        let bf = frame_piece(b, f, start, g.len());
+        g.iter_mut()
+            .zip(x)
+            .zip(bf)
+            .for_each(|((g, x), b)| *g = *x - (*g - *b));
+    }
+}
+
+/// `[frame, a, b] → [frame, b, a]` in standard layout: to and from the readout-major
+/// layout of [`Encoding::normal_lines`] (its own inverse).
+pub fn transpose_planes(x: ArrayView3<Complex32>) -> Array3<Complex32> {
+    x.permuted_axes([0, 2, 1]).as_standard_layout().into_owned()
 }
 
 /// `Σ conj(a)·b` in f64 (inner product of two complex arrays of the same shape).

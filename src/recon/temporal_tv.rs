@@ -12,9 +12,9 @@
 use ndarray::{Array3, Axis, Zip};
 use num_complex::Complex32;
 
-use super::operator::{converged, Encoding};
+use super::operator::{converged, frame_piece, transpose_planes, Encoding};
 use super::params::{iterations, tolerance};
-use super::sparsity::relative_change;
+use super::sums::relative_change;
 use super::{coils, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor};
 
 /// Temporal total variation.
@@ -72,7 +72,7 @@ impl Reconstructor for TemporalTv {
     fn reconstruct(&self, input: &ReconInput, p: &Params) -> Result<ReconOutput, ReconError> {
         let sens = coils::for_input(input, self.id())?;
         let op = Encoding::new(sens.view(), &input.mask.lines, input.fft)?;
-        let (b, mut ws) = op.data_adjoint(input.kspace);
+        let b = op.data_adjoint_lines(input.kspace);
         let (nf, nr, nc) = b.dim();
         let lambda = p.get("lambda") as f32 * b.iter().map(|z| z.norm()).fold(0.0, f32::max);
         let (iters, tol) = (p.count("iterations"), p.get("tolerance"));
@@ -84,8 +84,10 @@ impl Reconstructor for TemporalTv {
         let mut ext = Array3::<Complex32>::zeros((nf, nr, nc));
         let mut residuals = Vec::new();
         for _ in 0..iters {
-            op.normal(x.view(), g.view_mut(), &mut ws);
-            Zip::from(&mut g).and(&b).for_each(|g, b| *g -= *b);
+            op.normal_lines(x.view(), g.view_mut(), |f, start, g, _| {
+                let bf = frame_piece(&b, f, start, g.len());
+                g.iter_mut().zip(bf).for_each(|(g, b)| *g -= *b);
+            });
             add_diff_adjoint(&z, &mut g);
             // g ← x⁺ = x − τ·gradient; ext ← 2x⁺ − x; dx ← D_t ext
             Zip::from(&mut g)
@@ -107,6 +109,7 @@ impl Reconstructor for TemporalTv {
                 break;
             }
         }
+        let x = transpose_planes(x.view());
         Ok(ReconOutput {
             images: x.mapv(|z| z.norm()),
             iterations: residuals.len(),

@@ -10,9 +10,10 @@
 use ndarray::{Array3, Zip};
 use num_complex::Complex32;
 
-use super::operator::{converged, Encoding};
+use super::operator::{converged, gradient_step, transpose_planes, Encoding};
 use super::params::{iterations, tolerance};
-use super::sparsity::{relative_change, xf_peak, xf_shrink};
+use super::sparsity::{xf_peak, xf_shrink};
+use super::sums::relative_change;
 use super::{coils, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor};
 use crate::fft::TemporalFft;
 
@@ -47,23 +48,18 @@ impl Reconstructor for XfSparse {
     fn reconstruct(&self, input: &ReconInput, p: &Params) -> Result<ReconOutput, ReconError> {
         let sens = coils::for_input(input, self.id())?;
         let op = Encoding::new(sens.view(), &input.mask.lines, input.fft)?;
-        let (b, mut ws) = op.data_adjoint(input.kspace);
-        let (nf, nr, nc) = b.dim();
-        let tf = TemporalFft::new(nf);
+        let b = op.data_adjoint_lines(input.kspace);
+        let tf = TemporalFft::new(b.dim().0);
         let lambda = p.get("lambda") as f32 * xf_peak(&b, &tf);
         let (iters, tol) = (p.count("iterations"), p.get("tolerance"));
         let mut x = b.clone();
         let mut z = b.clone();
-        let mut g = Array3::<Complex32>::zeros((nf, nr, nc));
+        let mut g = Array3::<Complex32>::zeros(b.dim());
         let mut t = 1.0f64;
         let mut residuals = Vec::new();
         for _ in 0..iters {
-            op.normal(z.view(), g.view_mut(), &mut ws);
-            // v = z − (EᴴE z − Eᴴy), then the x-f shrinkage.
-            Zip::from(&mut g)
-                .and(&z)
-                .and(&b)
-                .for_each(|g, z, b| *g = *z - (*g - *b));
+            // v = z − (EᴴE z − Eᴴy) per frame as the normal operator finishes it.
+            op.normal_lines(z.view(), g.view_mut(), gradient_step(&b));
             xf_shrink(g.view_mut(), lambda, &tf);
             let t_next = 0.5 * (1.0 + (1.0 + 4.0 * t * t).sqrt());
             let momentum = ((t - 1.0) / t_next) as f32;
@@ -71,13 +67,14 @@ impl Reconstructor for XfSparse {
             Zip::from(&mut z)
                 .and(&g)
                 .and(&x)
-                .for_each(|z, new, old| *z = *new + (*new - *old) * momentum);
+                .par_for_each(|z, new, old| *z = *new + (*new - *old) * momentum);
             std::mem::swap(&mut x, &mut g);
             t = t_next;
             if converged(&residuals, tol) {
                 break;
             }
         }
+        let x = transpose_planes(x.view());
         Ok(ReconOutput {
             images: x.mapv(|z| z.norm()),
             iterations: residuals.len(),

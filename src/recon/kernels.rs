@@ -1,0 +1,321 @@
+//! Elementwise kernels of the encoding operator, compiled twice: for the baseline x86-64
+//! instruction set and for AVX, chosen at run time. The AVX complex products use the
+//! duplicate/swap/addsub pattern (four complex values per instruction, no fused
+//! multiply-add): every element sees the same IEEE operations as the plain formula, so both
+//! builds give the same bits.
+
+use num_complex::Complex32;
+
+/// Runs `$body` (a call of an `#[inline(always)]` function) compiled with AVX2 when the CPU
+/// has it, else as the baseline build.
+macro_rules! dispatch {
+    ($body:expr) => {{
+        #[cfg(target_arch = "x86_64")]
+        {
+            #[target_feature(enable = "avx2")]
+            fn wide<R>(f: impl FnOnce() -> R) -> R {
+                f()
+            }
+            if std::arch::is_x86_feature_detected!("avx2") {
+                // SAFETY: the CPU was just checked to support AVX2.
+                return unsafe { wide(|| $body) };
+            }
+        }
+        $body
+    }};
+}
+
+/// How the product is stored.
+#[derive(Clone, Copy)]
+enum Store {
+    Set,
+    Add,
+}
+
+/// `out[i] = a[i]·b[i]`.
+pub fn mul(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the CPU supports AVX (checked on the line above).
+        return unsafe { avx::product(out, a, b, false, Store::Set) };
+    }
+    mul_body(out, a, b)
+}
+
+/// `out[i] = conj(a[i])·b[i]`.
+pub fn conj_mul(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the CPU supports AVX (checked on the line above).
+        return unsafe { avx::product(out, a, b, true, Store::Set) };
+    }
+    conj_mul_body(out, a, b)
+}
+
+/// `out[i] += conj(a[i])·b[i]`.
+pub fn conj_mul_add(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the CPU supports AVX (checked on the line above).
+        return unsafe { avx::product(out, a, b, true, Store::Add) };
+    }
+    conj_mul_add_body(out, a, b)
+}
+
+/// `out[i] += c·x[i]` (complex multiply-accumulate with one coefficient).
+pub fn scaled_add(out: &mut [Complex32], c: Complex32, x: &[Complex32]) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the CPU supports AVX (checked on the line above).
+        return unsafe { avx::scaled_add(out, c, x) };
+    }
+    out.iter_mut().zip(x).for_each(|(o, x)| *o += c * *x);
+}
+
+/// `Σ conj(a[i])·b[i]` in f32, for blocks of up to a few thousand values. The AVX build
+/// keeps four complex lanes of `re(a)·b` and `im(a)·swap(b)` and combines them at the end;
+/// the baseline build keeps eight lanes of the plain formula. Each is deterministic; the
+/// two differ in rounding.
+pub fn conj_dot(a: &[Complex32], b: &[Complex32]) -> Complex32 {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the CPU supports AVX (checked on the line above).
+        return unsafe { avx::conj_dot(a, b) };
+    }
+    conj_dot_lanes(a, b)
+}
+
+fn conj_dot_lanes(a: &[Complex32], b: &[Complex32]) -> Complex32 {
+    const LANES: usize = 8;
+    let (mut re, mut im) = ([0f32; LANES], [0f32; LANES]);
+    let mut xs = a.chunks_exact(LANES);
+    let mut ys = b.chunks_exact(LANES);
+    for (x, y) in (&mut xs).zip(&mut ys) {
+        for i in 0..LANES {
+            re[i] += x[i].re * y[i].re + x[i].im * y[i].im;
+            im[i] += x[i].re * y[i].im - x[i].im * y[i].re;
+        }
+    }
+    let tail: Complex32 = xs
+        .remainder()
+        .iter()
+        .zip(ys.remainder())
+        .map(|(x, y)| x.conj() * *y)
+        .sum();
+    Complex32::new(re.iter().sum(), im.iter().sum()) + tail
+}
+
+#[cfg(target_arch = "x86_64")]
+mod avx {
+    use super::Store;
+    use num_complex::Complex32;
+    use std::arch::x86_64::*;
+
+    /// `out ⟵ a·b` or `conj(a)·b`, four complex values per step, the tail in scalar code.
+    ///
+    /// With `a = (p, q)`, `b = (u, v)`: `a·b = (pu − qv, pv + qu)` is
+    /// `addsub(p·b, q·swap(b))`; `conj(a)·b = (pu + qv, pv − qu)` is
+    /// `addsub(p·b, −q·swap(b))`. Each lane is one product pair and one add or subtract,
+    /// in the plain formula's order.
+    #[target_feature(enable = "avx")]
+    pub(super) fn product(
+        out: &mut [Complex32],
+        a: &[Complex32],
+        b: &[Complex32],
+        conj: bool,
+        store: Store,
+    ) {
+        let n = out.len().min(a.len()).min(b.len());
+        let whole = n / 4 * 4;
+        let flip = _mm256_set1_ps(-0.0);
+        for i in (0..whole).step_by(4) {
+            // SAFETY: i + 4 ≤ n, so every 8-float access is inside its slice; unaligned
+            // loads and stores are used.
+            unsafe {
+                let pa = a.as_ptr().add(i).cast::<f32>();
+                let pb = b.as_ptr().add(i).cast::<f32>();
+                let po = out.as_mut_ptr().add(i).cast::<f32>();
+                let va = _mm256_loadu_ps(pa);
+                let vb = _mm256_loadu_ps(pb);
+                let p = _mm256_moveldup_ps(va);
+                let mut q = _mm256_movehdup_ps(va);
+                if conj {
+                    q = _mm256_xor_ps(q, flip);
+                }
+                let swapped = _mm256_permute_ps::<0b1011_0001>(vb);
+                let mut r = _mm256_addsub_ps(_mm256_mul_ps(p, vb), _mm256_mul_ps(q, swapped));
+                if let Store::Add = store {
+                    r = _mm256_add_ps(_mm256_loadu_ps(po), r);
+                }
+                _mm256_storeu_ps(po, r);
+            }
+        }
+        for i in whole..n {
+            let v = if conj {
+                a[i].conj() * b[i]
+            } else {
+                a[i] * b[i]
+            };
+            match store {
+                Store::Set => out[i] = v,
+                Store::Add => out[i] += v,
+            }
+        }
+    }
+
+    /// `out ⟵ out + c·x`, four values per step: `c·x = addsub(re(c)·x, im(c)·swap(x))`.
+    #[target_feature(enable = "avx")]
+    pub(super) fn scaled_add(out: &mut [Complex32], c: Complex32, x: &[Complex32]) {
+        let n = out.len().min(x.len());
+        let whole = n / 4 * 4;
+        let (p, q) = (_mm256_set1_ps(c.re), _mm256_set1_ps(c.im));
+        for i in (0..whole).step_by(4) {
+            // SAFETY: i + 4 ≤ n, so every 8-float access is inside its slice.
+            unsafe {
+                let px = x.as_ptr().add(i).cast::<f32>();
+                let po = out.as_mut_ptr().add(i).cast::<f32>();
+                let vx = _mm256_loadu_ps(px);
+                let swapped = _mm256_permute_ps::<0b1011_0001>(vx);
+                let r = _mm256_addsub_ps(_mm256_mul_ps(p, vx), _mm256_mul_ps(q, swapped));
+                _mm256_storeu_ps(po, _mm256_add_ps(_mm256_loadu_ps(po), r));
+            }
+        }
+        for i in whole..n {
+            out[i] += c * x[i];
+        }
+    }
+
+    /// `Σ conj(a)·b`: lanes of `re(a)·b = (pu, pv)` and `im(a)·swap(b) = (qv, qu)`, then
+    /// `(Σpu + Σqv, Σpv − Σqu)`.
+    #[target_feature(enable = "avx")]
+    pub(super) fn conj_dot(a: &[Complex32], b: &[Complex32]) -> Complex32 {
+        let n = a.len().min(b.len());
+        let whole = n / 4 * 4;
+        let (mut s1, mut s2) = (_mm256_setzero_ps(), _mm256_setzero_ps());
+        for i in (0..whole).step_by(4) {
+            // SAFETY: i + 4 ≤ n, so every 8-float load is inside its slice.
+            unsafe {
+                let va = _mm256_loadu_ps(a.as_ptr().add(i).cast::<f32>());
+                let vb = _mm256_loadu_ps(b.as_ptr().add(i).cast::<f32>());
+                let swapped = _mm256_permute_ps::<0b1011_0001>(vb);
+                s1 = _mm256_add_ps(s1, _mm256_mul_ps(_mm256_moveldup_ps(va), vb));
+                s2 = _mm256_add_ps(s2, _mm256_mul_ps(_mm256_movehdup_ps(va), swapped));
+            }
+        }
+        let (mut l1, mut l2) = ([0f32; 8], [0f32; 8]);
+        // SAFETY: each array holds exactly eight floats.
+        unsafe {
+            _mm256_storeu_ps(l1.as_mut_ptr(), s1);
+            _mm256_storeu_ps(l2.as_mut_ptr(), s2);
+        }
+        let (mut re, mut im) = (0f32, 0f32);
+        for k in 0..4 {
+            re += l1[2 * k] + l2[2 * k];
+            im += l1[2 * k + 1] - l2[2 * k + 1];
+        }
+        let tail: Complex32 = a[whole..n]
+            .iter()
+            .zip(&b[whole..n])
+            .map(|(x, y)| x.conj() * *y)
+            .sum();
+        Complex32::new(re, im) + tail
+    }
+}
+
+/// `v[i] *= w[i]` for a complex buffer seen as `[re, im, re, im, …]` and real weights given
+/// per float (each weight twice, once for the real and once for the imaginary part).
+pub fn scale(v: &mut [Complex32], w: &[f32]) {
+    dispatch!(scale_body(bytemuck::cast_slice_mut(v), w))
+}
+
+#[inline(always)]
+fn mul_body(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
+    out.iter_mut()
+        .zip(a)
+        .zip(b)
+        .for_each(|((o, a), b)| *o = *a * *b);
+}
+
+#[inline(always)]
+fn conj_mul_body(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
+    out.iter_mut()
+        .zip(a)
+        .zip(b)
+        .for_each(|((o, a), b)| *o = a.conj() * *b);
+}
+
+#[inline(always)]
+fn conj_mul_add_body(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
+    out.iter_mut()
+        .zip(a)
+        .zip(b)
+        .for_each(|((o, a), b)| *o += a.conj() * *b);
+}
+
+#[inline(always)]
+fn scale_body(v: &mut [f32], w: &[f32]) {
+    v.iter_mut().zip(w).for_each(|(v, w)| *v *= *w);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn wide(z: Complex32) -> num_complex::Complex64 {
+        num_complex::Complex64::new(z.re.into(), z.im.into())
+    }
+
+    #[test]
+    fn kernels_agree_with_plain_complex_arithmetic() {
+        // Exact equality: the same IEEE operations per element, only wider registers.
+        let a: Vec<Complex32> = (0..37)
+            .map(|i| Complex32::new(i as f32 * 0.3, 1.0 - i as f32))
+            .collect();
+        let b: Vec<Complex32> = (0..37)
+            .map(|i| Complex32::new((i as f32).sin(), 0.5))
+            .collect();
+        let mut out = vec![Complex32::default(); 37];
+        mul(&mut out, &a, &b);
+        assert!(out
+            .iter()
+            .zip(a.iter().zip(&b))
+            .all(|(o, (a, b))| *o == *a * *b));
+        let mut c = out.clone();
+        conj_mul(&mut c, &a, &b);
+        assert!(c
+            .iter()
+            .zip(a.iter().zip(&b))
+            .all(|(o, (a, b))| *o == a.conj() * *b));
+        let start = out.clone();
+        conj_mul_add(&mut out, &a, &b);
+        assert!(out
+            .iter()
+            .zip(start.iter().zip(a.iter().zip(&b)))
+            .all(|(o, (s, (a, b)))| *o == *s + a.conj() * *b));
+        let c = Complex32::new(0.3, -1.7);
+        let mut acc = a.clone();
+        scaled_add(&mut acc, c, &b);
+        assert!(acc
+            .iter()
+            .zip(a.iter().zip(&b))
+            .all(|(o, (a, b))| *o == *a + c * *b));
+        // The dot product against f64: tolerance 1e-5 relative, f32 sums of 37 terms.
+        let want: num_complex::Complex64 = a
+            .iter()
+            .zip(&b)
+            .map(|(x, y)| wide(*x).conj() * wide(*y))
+            .sum();
+        let got = wide(conj_dot(&a, &b));
+        assert!((got - want).norm() <= 1e-5 * want.norm(), "{got} vs {want}");
+        let got = wide(conj_dot_lanes(&a, &b));
+        assert!((got - want).norm() <= 1e-5 * want.norm(), "{got} vs {want}");
+        let w: Vec<f32> = (0..37).map(|i| i as f32 * 0.25).collect();
+        let mut v = a.clone();
+        let twice: Vec<f32> = w.iter().flat_map(|&x| [x, x]).collect();
+        scale(&mut v, &twice);
+        assert!(v
+            .iter()
+            .zip(a.iter().zip(&w))
+            .all(|(v, (a, w))| *v == *a * *w));
+    }
+}
