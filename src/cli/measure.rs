@@ -6,7 +6,7 @@ use anyhow::Context;
 use clap::Args;
 
 use super::progress::say;
-use cinegauge::io::{self, npy};
+use cinegauge::io;
 use cinegauge::pipeline;
 use cinegauge::recon::ReconPlan;
 use cinegauge::results::{InputHash, ResultsFile};
@@ -16,11 +16,12 @@ use cinegauge::segment::{seeds, SegmentParams};
 #[derive(Debug, Args)]
 #[command(
     after_help = "Example:\n  cinegauge measure --images sim/reference --seeds sim/seeds.toml --out sim/measured\n\n\
-The image folder holds one .npy [slice, frame, row, col] and its geometry.json. Writes \
+The images are a NIfTI-1 file (.nii, .nii.gz; axes col, row, slice, frame), a folder holding \
+one, or a folder with one .npy [slice, frame, row, col] and its geometry.json. Writes \
 DIR/measurements.json and DIR/measurements.csv. Research use only; not for diagnostic use."
 )]
 pub struct MeasureArgs {
-    /// Image folder (one .npy [slice, frame, row, col] + geometry.json), or the .npy itself.
+    /// NIfTI-1 file, or image folder (one .nii/.nii.gz, or one .npy + geometry.json).
     #[arg(long, value_name = "PATH")]
     pub images: PathBuf,
     /// Seeds file: [[seed]] tables with zero-based slice, frame, row, col.
@@ -71,12 +72,15 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
             );
         }
     }
-    let series = npy::read_image_series(&a.images).context("reading the image series")?;
+    let series = io::read_images(&a.images).context("reading the image series")?;
     for k in &series.unknown_keys {
         say(
             quiet,
             &format!("warning: geometry.json: unknown key `{k}` ignored"),
         );
+    }
+    for w in &series.warnings {
+        say(quiet, &format!("warning: {}: {w}", series.path.display()));
     }
     let seed_list = seeds::read_seeds(&a.seeds).context("reading seeds")?;
     let params = SegmentParams::default();

@@ -1,6 +1,7 @@
 //! Command-line interface: argument definitions and the commands they run.
 
 mod demo;
+mod inspect;
 mod listing;
 mod measure;
 mod progress;
@@ -59,8 +60,10 @@ pub enum Command {
     Methods(listing::ListArgs),
     /// List the sampling patterns.
     Patterns(listing::ListArgs),
-    /// Segment and measure one image series (a folder with images.npy and geometry.json).
+    /// Segment and measure one image series (NIfTI-1, or .npy + geometry.json).
     Measure(measure::MeasureArgs),
+    /// Print what the readers find in a file or folder: dimensions, spacing, frames, timing.
+    Inspect(inspect::InspectArgs),
 }
 
 /// Runs the parsed command.
@@ -76,5 +79,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Methods(a) => listing::methods(a),
         Command::Patterns(a) => listing::patterns(a),
         Command::Measure(a) => measure::run(a, quiet),
+        Command::Inspect(a) => inspect::run(a),
     }
 }

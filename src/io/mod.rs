@@ -1,5 +1,6 @@
 //! Reading and writing study data; every write is atomic (temporary file, then rename).
 
+pub mod nifti;
 pub mod npy;
 
 use std::io::Write;
@@ -11,14 +12,14 @@ use sha2::{Digest, Sha256};
 #[derive(Debug, thiserror::Error)]
 pub enum IoError {
     /// Reading or writing a file failed.
-    #[error("{path}: {what}: {source}")]
+    #[error("{path}: {what}: {cause}")]
     File {
         /// File.
         path: String,
         /// What was being done.
         what: &'static str,
-        /// Cause.
-        source: std::io::Error,
+        /// Cause (in the message itself, so that error chains do not repeat it).
+        cause: std::io::Error,
     },
     /// The file's content is not what was expected.
     #[error("{path}: {message}")]
@@ -35,7 +36,7 @@ impl IoError {
         IoError::File {
             path: path.display().to_string(),
             what,
-            source,
+            cause: source,
         }
     }
 
@@ -64,6 +65,22 @@ pub fn write_atomic_with(
     path: &Path,
     fill: impl FnOnce(&mut std::fs::File) -> std::io::Result<()>,
 ) -> Result<(), IoError> {
+    write_atomic_path(path, |tmp| {
+        let mut f = std::fs::File::create(tmp)?;
+        fill(&mut f)
+    })
+}
+
+/// Like [`write_atomic`], for writers that insist on opening the file by path themselves:
+/// `fill` writes to a temporary path in the same folder (keeping the file's extensions, which
+/// such writers read), then it is renamed over `path`.
+///
+/// # Errors
+/// [`IoError::File`] naming the path.
+pub fn write_atomic_path(
+    path: &Path,
+    fill: impl FnOnce(&Path) -> std::io::Result<()>,
+) -> Result<(), IoError> {
     let dir = path
         .parent()
         .filter(|p| !p.as_os_str().is_empty())
@@ -72,18 +89,66 @@ pub fn write_atomic_with(
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_default();
-    let tmp: PathBuf = dir.join(format!(".{name}.partial-{}", std::process::id()));
-    let result = (|| {
-        let mut f = std::fs::File::create(&tmp)?;
-        fill(&mut f)?;
-        f.sync_all()?;
-        std::fs::rename(&tmp, path)
-    })();
+    let tmp = dir.join(format!(".partial-{}-{name}", std::process::id()));
+    let result = fill(&tmp)
+        .and_then(|()| std::fs::File::open(&tmp)?.sync_all())
+        .and_then(|()| std::fs::rename(&tmp, path));
     if let Err(e) = result {
         let _ = std::fs::remove_file(&tmp);
         return Err(IoError::file(path, "cannot write", e));
     }
     Ok(())
+}
+
+/// Reads an image series in any supported format: a NIfTI-1 file (`.nii`, `.nii.gz`), a
+/// folder holding one, or a NumPy image folder / `.npy` file with `geometry.json`.
+///
+/// # Errors
+/// [`IoError`] naming the file and what is wrong.
+pub fn read_images(path: &Path) -> Result<npy::ImageSeries, IoError> {
+    if nifti::is_nifti(path) {
+        return nifti::read_nifti_series(path);
+    }
+    if path.is_dir() {
+        let listed = std::fs::read_dir(path)
+            .map_err(|e| IoError::file(path, "cannot list folder", e))?
+            .filter_map(|e| e.ok().map(|e| e.path()));
+        let mut niftis: Vec<PathBuf> = listed.filter(|p| nifti::is_nifti(p)).collect();
+        niftis.sort();
+        let has_npy = std::fs::read_dir(path)
+            .map_err(|e| IoError::file(path, "cannot list folder", e))?
+            .filter_map(|e| e.ok())
+            .any(|e| e.path().extension().is_some_and(|x| x == "npy"));
+        match (niftis.len(), has_npy) {
+            (1, false) => return nifti::read_nifti_series(&niftis[0]),
+            (n, _) if n > 1 => {
+                let names: Vec<String> = niftis
+                    .iter()
+                    .filter_map(|p| p.file_name())
+                    .map(|n| n.to_string_lossy().into_owned())
+                    .collect();
+                return Err(IoError::content(
+                    path,
+                    format!(
+                        "several NIfTI files ({}); give the one to read",
+                        names.join(", ")
+                    ),
+                ));
+            }
+            _ => {}
+        }
+    }
+    npy::read_image_series(path)
+}
+
+/// The file names of `paths`, comma-separated (for "which one?" messages).
+pub(crate) fn file_names(paths: &[PathBuf]) -> String {
+    paths
+        .iter()
+        .filter_map(|p| p.file_name())
+        .map(|n| n.to_string_lossy().into_owned())
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 /// Creates the output folder (and parents).

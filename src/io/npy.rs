@@ -7,7 +7,7 @@ use ndarray::{Array4, ArrayView4};
 use ndarray_npy::{ReadNpyExt, WriteNpyExt};
 use num_complex::Complex32;
 
-use super::{write_atomic, write_atomic_with, IoError};
+use super::{file_names, write_atomic, write_atomic_with, IoError};
 use crate::geometry::{read_sidecar, Geometry};
 
 /// Name of the geometry sidecar.
@@ -26,6 +26,8 @@ pub struct ImageSeries {
     pub path: PathBuf,
     /// Sidecar keys that were not understood (to warn about).
     pub unknown_keys: Vec<String>,
+    /// What the reader assumed or noticed (to print as warnings).
+    pub warnings: Vec<String>,
 }
 
 /// Reads an image folder (or the `.npy` file inside one) with its `geometry.json` sidecar.
@@ -45,16 +47,11 @@ pub fn read_image_series(path: &Path) -> Result<ImageSeries, IoError> {
             1 => (path.to_path_buf(), npys.remove(0)),
             0 => return Err(IoError::content(path, "no .npy image array in this folder")),
             _ => {
-                let names: Vec<String> = npys
-                    .iter()
-                    .filter_map(|p| p.file_name())
-                    .map(|n| n.to_string_lossy().into_owned())
-                    .collect();
                 return Err(IoError::content(
                     path,
                     format!(
                         "several .npy files ({}); give the one to measure",
-                        names.join(", ")
+                        file_names(&npys)
                     ),
                 ));
             }
@@ -86,6 +83,7 @@ pub fn read_image_series(path: &Path) -> Result<ImageSeries, IoError> {
         geometry,
         path: file,
         unknown_keys: sidecar.unknown.keys().cloned().collect(),
+        warnings: Vec::new(),
     })
 }
 

@@ -1,0 +1,151 @@
+//! `cinegauge inspect PATH`: what the readers find in a file or folder, before any work.
+
+use std::path::{Path, PathBuf};
+
+use anyhow::Context;
+use clap::Args;
+use serde_json::{json, Value};
+
+use cinegauge::geometry::Geometry;
+use cinegauge::io::{self, npy};
+
+/// Arguments of `inspect`.
+#[derive(Debug, Args)]
+#[command(
+    after_help = "Examples:\n  cinegauge inspect sim/reference\n  cinegauge inspect study/cine.nii.gz --json\n\n\
+Reads image series (NIfTI-1, or .npy + geometry.json) and raw k-space folders (slice_NN.npy + \
+geometry.json) and prints dimensions, spacing, slice positions along the normal, frames, trigger \
+times, heart rate and warnings. Nothing is written. Research use only; not for diagnostic use."
+)]
+pub struct InspectArgs {
+    /// File or folder to inspect.
+    pub path: PathBuf,
+    /// Print the findings as JSON on stdout.
+    #[arg(long)]
+    pub json: bool,
+}
+
+fn is_kspace_folder(path: &Path) -> bool {
+    path.is_dir()
+        && std::fs::read_dir(path).is_ok_and(|entries| {
+            entries.filter_map(|e| e.ok()).any(|e| {
+                let name = e.file_name().to_string_lossy().into_owned();
+                name.starts_with("slice_") && name.ends_with(".npy")
+            })
+        })
+}
+
+fn geometry_json(g: &Geometry, slices: usize) -> Value {
+    json!({
+        "pixel_spacing_mm": [g.row_spacing_mm, g.col_spacing_mm],
+        "slice_thickness_mm": g.slice_thickness_mm,
+        "slice_spacing_mm": g.slice_spacing_mm,
+        "slice_positions_mm": (0..slices).map(|k| k as f64 * g.slice_spacing_mm).collect::<Vec<_>>(),
+        "frames": g.frames(),
+        "trigger_times_ms": g.trigger_times_ms,
+        "rr_interval_ms": g.rr_interval_ms,
+        "heart_rate_bpm": g.rr_interval_ms.map(|rr| 60_000.0 / rr),
+    })
+}
+
+pub fn run(a: InspectArgs) -> anyhow::Result<()> {
+    let found = if is_kspace_folder(&a.path) {
+        let k = npy::open_kspace_folder(&a.path).context("reading the k-space folder")?;
+        let (s, c, f, ky, kx) = k.dims;
+        let mut v = json!({
+            "path": a.path.display().to_string(),
+            "kind": "raw k-space (.npy per slice)",
+            "dims": {"slices": s, "coils": c, "frames": f, "ky": ky, "kx": kx},
+            "noise_covariance": k.noise_cov.is_some(),
+            "warnings": k.unknown_keys.iter().map(|u| format!("geometry.json: unknown key `{u}` ignored")).collect::<Vec<_>>(),
+        });
+        v["geometry"] = geometry_json(&k.geometry, s);
+        v
+    } else {
+        let series = io::read_images(&a.path).context("reading the image series")?;
+        let (s, f, r, c) = series.images.dim();
+        let kind = if io::nifti::is_nifti(&series.path) {
+            "image series (NIfTI-1)"
+        } else {
+            "image series (.npy + geometry.json)"
+        };
+        let mut warnings = series.warnings.clone();
+        warnings.extend(
+            series
+                .unknown_keys
+                .iter()
+                .map(|u| format!("geometry.json: unknown key `{u}` ignored")),
+        );
+        let mut v = json!({
+            "path": series.path.display().to_string(),
+            "kind": kind,
+            "dims": {"slices": s, "frames": f, "rows": r, "cols": c},
+            "warnings": warnings,
+        });
+        v["geometry"] = geometry_json(&series.geometry, s);
+        v
+    };
+    if a.json {
+        println!("{}", serde_json::to_string_pretty(&found)?);
+        return Ok(());
+    }
+    print_text(&found);
+    Ok(())
+}
+
+fn print_text(v: &Value) {
+    let g = &v["geometry"];
+    println!(
+        "{}\n  {}",
+        v["path"].as_str().unwrap_or(""),
+        v["kind"].as_str().unwrap_or("")
+    );
+    let dims: Vec<String> = ["slices", "coils", "frames", "rows", "cols", "ky", "kx"]
+        .iter()
+        .filter_map(|k| v["dims"].get(k).map(|n| format!("{n} {k}")))
+        .collect();
+    println!("  dimensions: {}", dims.join(", "));
+    println!(
+        "  pixel spacing: {} × {} mm (rows × cols); slice thickness {} mm; slice spacing {} mm",
+        g["pixel_spacing_mm"][0],
+        g["pixel_spacing_mm"][1],
+        g["slice_thickness_mm"],
+        g["slice_spacing_mm"]
+    );
+    let list = |key: &str| -> String {
+        g[key]
+            .as_array()
+            .map(|a| {
+                a.iter()
+                    .map(|x| format!("{:.1}", x.as_f64().unwrap_or(f64::NAN)))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            })
+            .unwrap_or_default()
+    };
+    println!(
+        "  slice positions along the normal (mm): {}",
+        list("slice_positions_mm")
+    );
+    println!(
+        "  frames: {}; trigger times (ms): {}",
+        g["frames"],
+        list("trigger_times_ms")
+    );
+    match g["heart_rate_bpm"].as_f64() {
+        Some(hr) => println!(
+            "  heart rate: {hr:.0} bpm (R–R {:.0} ms)",
+            g["rr_interval_ms"].as_f64().unwrap_or(f64::NAN)
+        ),
+        None => println!("  heart rate: not given"),
+    }
+    if let Some(k) = v.get("noise_covariance") {
+        println!(
+            "  noise covariance or noise scan: {}",
+            if k == true { "yes" } else { "no" }
+        );
+    }
+    for w in v["warnings"].as_array().into_iter().flatten() {
+        println!("  warning: {}", w.as_str().unwrap_or(""));
+    }
+}
