@@ -26,7 +26,7 @@ fn expected(s: usize, f: usize, r: usize, c: usize) -> f32 {
 #[test]
 fn nibabel_files_read_with_axes_spacing_and_values_exact() {
     for name in ["cine.nii.gz", "scaled.nii"] {
-        let s = io::read_images(&fixture(name)).unwrap();
+        let s = io::read_images(&fixture(name), None).unwrap();
         assert_eq!(
             s.images.dim(),
             (3, 4, 5, 6),
@@ -58,7 +58,7 @@ fn nibabel_files_read_with_axes_spacing_and_values_exact() {
 
 #[test]
 fn zero_voxel_size_is_refused_naming_the_field() {
-    let err = io::read_images(&fixture("zero_pixdim.nii"))
+    let err = io::read_images(&fixture("zero_pixdim.nii"), None)
         .unwrap_err()
         .to_string();
     assert!(
@@ -81,7 +81,7 @@ fn wrong_magic_and_truncated_files_are_refused() {
     for (name, content) in cases {
         let p = dir.path().join(name);
         std::fs::write(&p, content).unwrap();
-        let err = io::read_images(&p).unwrap_err().to_string();
+        let err = io::read_images(&p, None).unwrap_err().to_string();
         assert!(err.contains(name), "{name}: {err}");
     }
 }
@@ -109,7 +109,7 @@ fn phantom_through_nifti_measures_the_same_as_in_memory() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("phantom.nii.gz");
     nifti::write_nifti_series(&path, stack.view(), &geom).unwrap();
-    let back = io::read_images(&path).unwrap();
+    let back = io::read_images(&path, None).unwrap();
     assert_eq!(back.images, stack);
     let (slice, row, col) = ph.mid_ventricular_pixel();
     let seeds = [Seed {

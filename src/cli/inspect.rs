@@ -13,13 +13,17 @@ use cinegauge::io::{self, npy};
 #[derive(Debug, Args)]
 #[command(
     after_help = "Examples:\n  cinegauge inspect sim/reference\n  cinegauge inspect study/cine.nii.gz --json\n\n\
-Reads image series (NIfTI-1, or .npy + geometry.json) and raw k-space folders (slice_NN.npy + \
+Reads image series (DICOM folders, NIfTI-1, or .npy + geometry.json) and raw k-space folders (slice_NN.npy + \
 geometry.json) and prints dimensions, spacing, slice positions along the normal, frames, trigger \
 times, heart rate and warnings. Nothing is written. Research use only; not for diagnostic use."
 )]
 pub struct InspectArgs {
     /// File or folder to inspect.
     pub path: PathBuf,
+    /// DICOM folder with several series: the one to describe (SeriesInstanceUID or
+    /// SeriesDescription); without it, the series are listed.
+    #[arg(long, value_name = "UID-OR-DESCRIPTION")]
+    pub series: Option<String>,
     /// Print the findings as JSON on stdout.
     #[arg(long)]
     pub json: bool,
@@ -35,12 +39,28 @@ fn is_kspace_folder(path: &Path) -> bool {
         })
 }
 
-fn geometry_json(g: &Geometry, slices: usize) -> Value {
+/// The series of a DICOM folder when there are several and none was chosen.
+fn several_dicom_series(
+    path: &Path,
+    chosen: Option<&str>,
+) -> anyhow::Result<Option<Vec<io::dicom::SeriesSummary>>> {
+    if chosen.is_some() || !path.is_dir() || io::dicom::dicom_files(path)?.is_empty() {
+        return Ok(None);
+    }
+    let list = io::dicom::list_series(path).context("reading the DICOM folder")?;
+    Ok((list.len() > 1).then_some(list))
+}
+
+fn geometry_json(g: &Geometry, slices: usize, positions: Option<&[f64]>) -> Value {
+    let positions: Vec<f64> = match positions {
+        Some(p) => p.to_vec(),
+        None => (0..slices).map(|k| k as f64 * g.slice_spacing_mm).collect(),
+    };
     json!({
         "pixel_spacing_mm": [g.row_spacing_mm, g.col_spacing_mm],
         "slice_thickness_mm": g.slice_thickness_mm,
         "slice_spacing_mm": g.slice_spacing_mm,
-        "slice_positions_mm": (0..slices).map(|k| k as f64 * g.slice_spacing_mm).collect::<Vec<_>>(),
+        "slice_positions_mm": positions,
         "frames": g.frames(),
         "trigger_times_ms": g.trigger_times_ms,
         "rr_interval_ms": g.rr_interval_ms,
@@ -59,13 +79,22 @@ pub fn run(a: InspectArgs) -> anyhow::Result<()> {
             "noise_covariance": k.noise_cov.is_some(),
             "warnings": k.unknown_keys.iter().map(|u| format!("geometry.json: unknown key `{u}` ignored")).collect::<Vec<_>>(),
         });
-        v["geometry"] = geometry_json(&k.geometry, s);
+        v["geometry"] = geometry_json(&k.geometry, s, None);
         v
+    } else if let Some(list) = several_dicom_series(&a.path, a.series.as_deref())? {
+        json!({
+            "path": a.path.display().to_string(),
+            "kind": "DICOM folder with several series (choose one with --series)",
+            "series": list.iter().map(|s| json!({"uid": s.uid, "description": s.description, "images": s.images})).collect::<Vec<_>>(),
+        })
     } else {
-        let series = io::read_images(&a.path).context("reading the image series")?;
+        let series =
+            io::read_images(&a.path, a.series.as_deref()).context("reading the image series")?;
         let (s, f, r, c) = series.images.dim();
         let kind = if io::nifti::is_nifti(&series.path) {
             "image series (NIfTI-1)"
+        } else if series.path.is_dir() {
+            "image series (DICOM)"
         } else {
             "image series (.npy + geometry.json)"
         };
@@ -82,7 +111,7 @@ pub fn run(a: InspectArgs) -> anyhow::Result<()> {
             "dims": {"slices": s, "frames": f, "rows": r, "cols": c},
             "warnings": warnings,
         });
-        v["geometry"] = geometry_json(&series.geometry, s);
+        v["geometry"] = geometry_json(&series.geometry, s, series.positions_mm.as_deref());
         v
     };
     if a.json {
@@ -94,6 +123,22 @@ pub fn run(a: InspectArgs) -> anyhow::Result<()> {
 }
 
 fn print_text(v: &Value) {
+    if let Some(list) = v["series"].as_array() {
+        println!(
+            "{}\n  {}",
+            v["path"].as_str().unwrap_or(""),
+            v["kind"].as_str().unwrap_or("")
+        );
+        for s in list {
+            println!(
+                "  {}  \"{}\"  {} images",
+                s["uid"].as_str().unwrap_or(""),
+                s["description"].as_str().unwrap_or(""),
+                s["images"]
+            );
+        }
+        return;
+    }
     let g = &v["geometry"];
     println!(
         "{}\n  {}",
@@ -105,12 +150,16 @@ fn print_text(v: &Value) {
         .filter_map(|k| v["dims"].get(k).map(|n| format!("{n} {k}")))
         .collect();
     println!("  dimensions: {}", dims.join(", "));
+    let mm = |v: &Value| {
+        let s = format!("{:.3}", v.as_f64().unwrap_or(f64::NAN));
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    };
     println!(
         "  pixel spacing: {} × {} mm (rows × cols); slice thickness {} mm; slice spacing {} mm",
-        g["pixel_spacing_mm"][0],
-        g["pixel_spacing_mm"][1],
-        g["slice_thickness_mm"],
-        g["slice_spacing_mm"]
+        mm(&g["pixel_spacing_mm"][0]),
+        mm(&g["pixel_spacing_mm"][1]),
+        mm(&g["slice_thickness_mm"]),
+        mm(&g["slice_spacing_mm"])
     );
     let list = |key: &str| -> String {
         g[key]

@@ -16,14 +16,19 @@ use cinegauge::segment::{seeds, SegmentParams};
 #[derive(Debug, Args)]
 #[command(
     after_help = "Example:\n  cinegauge measure --images sim/reference --seeds sim/seeds.toml --out sim/measured\n\n\
-The images are a NIfTI-1 file (.nii, .nii.gz; axes col, row, slice, frame), a folder holding \
-one, or a folder with one .npy [slice, frame, row, col] and its geometry.json. Writes \
+The images are a DICOM folder (searched recursively; --series picks one of several), a NIfTI-1 \
+file (.nii, .nii.gz; axes col, row, slice, frame) or a folder holding one, or a folder with one \
+.npy [slice, frame, row, col] and its geometry.json. Writes \
 DIR/measurements.json and DIR/measurements.csv. Research use only; not for diagnostic use."
 )]
 pub struct MeasureArgs {
-    /// NIfTI-1 file, or image folder (one .nii/.nii.gz, or one .npy + geometry.json).
+    /// DICOM folder, NIfTI-1 file, or image folder (one .nii/.nii.gz, or one .npy + geometry.json).
     #[arg(long, value_name = "PATH")]
     pub images: PathBuf,
+    /// DICOM folder with several series: the one to measure (SeriesInstanceUID or
+    /// SeriesDescription).
+    #[arg(long, value_name = "UID-OR-DESCRIPTION")]
+    pub series: Option<String>,
     /// Seeds file: [[seed]] tables with zero-based slice, frame, row, col.
     #[arg(long, value_name = "FILE")]
     pub seeds: PathBuf,
@@ -72,7 +77,8 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
             );
         }
     }
-    let series = io::read_images(&a.images).context("reading the image series")?;
+    let series =
+        io::read_images(&a.images, a.series.as_deref()).context("reading the image series")?;
     for k in &series.unknown_keys {
         say(
             quiet,
@@ -97,7 +103,7 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
     let inputs = vec![
         InputHash {
             label: "images".into(),
-            sha256: io::sha256_file(&series.path)?,
+            sha256: io::sha256_files(&series.files)?,
         },
         InputHash {
             label: "seeds".into(),

@@ -1,5 +1,6 @@
 //! Reading and writing study data; every write is atomic (temporary file, then rename).
 
+pub mod dicom;
 pub mod nifti;
 pub mod npy;
 
@@ -101,11 +102,13 @@ pub fn write_atomic_path(
 }
 
 /// Reads an image series in any supported format: a NIfTI-1 file (`.nii`, `.nii.gz`), a
-/// folder holding one, or a NumPy image folder / `.npy` file with `geometry.json`.
+/// folder holding one, a NumPy image folder / `.npy` file with `geometry.json`, or a folder
+/// of DICOM images (`series` picks one by SeriesInstanceUID or SeriesDescription when the
+/// folder holds several).
 ///
 /// # Errors
 /// [`IoError`] naming the file and what is wrong.
-pub fn read_images(path: &Path) -> Result<npy::ImageSeries, IoError> {
+pub fn read_images(path: &Path, series: Option<&str>) -> Result<npy::ImageSeries, IoError> {
     if nifti::is_nifti(path) {
         return nifti::read_nifti_series(path);
     }
@@ -135,10 +138,34 @@ pub fn read_images(path: &Path) -> Result<npy::ImageSeries, IoError> {
                     ),
                 ));
             }
+            (0, false) => {
+                if self::dicom::dicom_files(path)?.is_empty() {
+                    return Err(IoError::content(
+                        path,
+                        "no image series here: no DICOM files, no .nii/.nii.gz, no .npy",
+                    ));
+                }
+                return self::dicom::read_dicom_series(path, series);
+            }
             _ => {}
         }
     }
     npy::read_image_series(path)
+}
+
+/// SHA-256 over the SHA-256 of each file in order (the provenance of a multi-file series).
+///
+/// # Errors
+/// [`IoError::File`] naming a file that cannot be read.
+pub fn sha256_files(files: &[PathBuf]) -> Result<String, IoError> {
+    if let [one] = files {
+        return sha256_file(one);
+    }
+    let mut h = Sha256::new();
+    for f in files {
+        h.update(sha256_file(f)?.as_bytes());
+    }
+    Ok(format!("{:x}", h.finalize()))
 }
 
 /// The file names of `paths`, comma-separated (for "which one?" messages).

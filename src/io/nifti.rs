@@ -179,6 +179,8 @@ pub fn read_nifti_series(path: &Path) -> Result<ImageSeries, IoError> {
         path: path.to_path_buf(),
         unknown_keys: Vec::new(),
         warnings,
+        files: vec![path.to_path_buf()],
+        positions_mm: None,
     })
 }
 

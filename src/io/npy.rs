@@ -28,6 +28,10 @@ pub struct ImageSeries {
     pub unknown_keys: Vec<String>,
     /// What the reader assumed or noticed (to print as warnings).
     pub warnings: Vec<String>,
+    /// The files the stack was read from, in stack order (for input hashes).
+    pub files: Vec<PathBuf>,
+    /// Slice positions along the normal (mm) where the format records them (DICOM).
+    pub positions_mm: Option<Vec<f64>>,
 }
 
 /// Reads an image folder (or the `.npy` file inside one) with its `geometry.json` sidecar.
@@ -81,9 +85,11 @@ pub fn read_image_series(path: &Path) -> Result<ImageSeries, IoError> {
     Ok(ImageSeries {
         images,
         geometry,
-        path: file,
+        path: file.clone(),
         unknown_keys: sidecar.unknown.keys().cloned().collect(),
         warnings: Vec::new(),
+        files: vec![file],
+        positions_mm: None,
     })
 }
 
