@@ -5,11 +5,10 @@ use std::path::PathBuf;
 use std::process::Command;
 
 use cinegauge::io::{self, nifti};
-use cinegauge::phantom::{Phantom, PhantomSpec};
 use cinegauge::pipeline;
-use cinegauge::segment::seeds::Seed;
 use cinegauge::segment::SegmentParams;
-use ndarray::{Array4, Axis};
+
+mod common;
 
 fn fixture(name: &str) -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
@@ -91,33 +90,14 @@ fn phantom_through_nifti_measures_the_same_as_in_memory() {
     // Round trip: rendered phantom → .nii.gz → read back → measured, against the same
     // measurement of the in-memory stack. The images must come back bit for bit; volumes
     // may differ only by the float32 rounding of the voxel sizes in the header (1e-6).
-    let spec = PhantomSpec {
-        slices: 11,
-        rows: 64,
-        cols: 72,
-        pixel_mm: 2.5,
-        frames: 12,
-        ..PhantomSpec::default()
-    };
-    let ph = Phantom::new(spec).unwrap();
-    let slices: Vec<_> = (0..ph.spec().slices)
-        .map(|k| ph.render_slice(k).0)
-        .collect();
-    let views: Vec<_> = slices.iter().map(|a| a.view()).collect();
-    let stack: Array4<f32> = ndarray::stack(Axis(0), &views).unwrap();
+    let (ph, stack, seed) = common::small_phantom_stack();
     let geom = ph.geometry();
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("phantom.nii.gz");
     nifti::write_nifti_series(&path, stack.view(), &geom).unwrap();
     let back = io::read_images(&path, None).unwrap();
     assert_eq!(back.images, stack);
-    let (slice, row, col) = ph.mid_ventricular_pixel();
-    let seeds = [Seed {
-        slice,
-        frame: 0,
-        row,
-        col,
-    }];
+    let seeds = [seed];
     let params = SegmentParams::default();
     let (_, direct) = pipeline::measure_series(stack.view(), &geom, &seeds, &params).unwrap();
     let (_, read) =

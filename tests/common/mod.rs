@@ -62,3 +62,46 @@ pub fn rng(seed: u64) -> Xoshiro256PlusPlus {
 pub fn uniform(r: &mut Xoshiro256PlusPlus, lo: f64, hi: f64) -> f64 {
     r.random_range(lo..hi)
 }
+
+/// A small noise-free phantom (11 slices of 64 × 72 at 2.5 mm, 12 frames), its rendered
+/// magnitude stack `[slice, frame, row, col]` and one mid-ventricular seed.
+pub fn small_phantom_stack() -> (
+    cinegauge::phantom::Phantom,
+    ndarray::Array4<f32>,
+    cinegauge::segment::seeds::Seed,
+) {
+    use cinegauge::phantom::{Phantom, PhantomSpec};
+    let spec = PhantomSpec {
+        slices: 11,
+        rows: 64,
+        cols: 72,
+        pixel_mm: 2.5,
+        frames: 12,
+        ..PhantomSpec::default()
+    };
+    let ph = Phantom::new(spec).unwrap();
+    let slices: Vec<_> = (0..ph.spec().slices)
+        .map(|k| ph.render_slice(k).0)
+        .collect();
+    let views: Vec<_> = slices.iter().map(|a| a.view()).collect();
+    let stack = ndarray::stack(ndarray::Axis(0), &views).unwrap();
+    let (slice, row, col) = ph.mid_ventricular_pixel();
+    let seed = cinegauge::segment::seeds::Seed {
+        slice,
+        frame: 0,
+        row,
+        col,
+    };
+    (ph, stack, seed)
+}
+
+/// Largest absolute difference between two equally long sequences of values.
+pub fn max_abs_diff<'a>(
+    a: impl IntoIterator<Item = &'a f32>,
+    b: impl IntoIterator<Item = &'a f32>,
+) -> f32 {
+    a.into_iter()
+        .zip(b)
+        .map(|(x, y)| (x - y).abs())
+        .fold(0.0, f32::max)
+}

@@ -501,3 +501,6 @@ fn describe(found: &[SeriesSummary]) -> String {
         .collect::<Vec<_>>()
         .join("; ")
 }
+
+mod write;
+pub use write::{derived_uid, write_dicom_series, SeriesLabel};
