@@ -63,6 +63,17 @@ fn sorted_and_shuffled_folders_give_the_same_stack() {
 }
 
 #[test]
+fn an_enhanced_multi_frame_file_gives_the_same_stack() {
+    // The same images as one Enhanced MR Image file (frames shuffled, geometry and timing in
+    // the per-frame and shared functional groups, rescale in PixelValueTransformation).
+    let enhanced = io::read_images(&fixture("enhanced"), None).unwrap();
+    check_stack(&enhanced, "enhanced");
+    let sorted = io::read_images(&fixture("sorted"), None).unwrap();
+    assert_eq!(enhanced.images, sorted.images);
+    assert_eq!(enhanced.files.len(), 1);
+}
+
+#[test]
 fn a_folder_with_two_series_asks_which_and_reads_the_chosen_one() {
     let err = io::read_images(&fixture("two_series"), None)
         .unwrap_err()

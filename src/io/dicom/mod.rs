@@ -8,18 +8,17 @@
 //! attributes needed for geometry and timing are read; nothing identifying the patient is
 //! kept.
 
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, HashMap};
 use std::io::Read;
 use std::path::{Path, PathBuf};
 
-use ::dicom::dictionary_std::tags;
-use ::dicom::object::{DefaultDicomObject, OpenFileOptions};
 use ::dicom::pixeldata::PixelDecoder;
 use ndarray::{s, Array4};
 
 use super::npy::ImageSeries;
 use super::IoError;
 use crate::geometry::{Geometry, GeometrySidecar};
+use header::Header;
 
 /// Tolerance on direction cosines when checking that all images share one orientation.
 const ORIENTATION_TOL: f64 = 1e-4;
@@ -27,24 +26,6 @@ const ORIENTATION_TOL: f64 = 1e-4;
 const SAME_SLICE_MM: f64 = 0.01;
 /// Allowed relative deviation of one slice gap from the mean gap.
 const GAP_TOL: f64 = 0.01;
-
-/// One image's header facts.
-#[derive(Debug, Clone)]
-struct Header {
-    path: PathBuf,
-    series_uid: String,
-    description: String,
-    orientation: [f64; 6],
-    position: [f64; 3],
-    spacing: Option<[f64; 2]>,
-    thickness: Option<f64>,
-    trigger_ms: Option<f64>,
-    instance: Option<i64>,
-    rows: usize,
-    cols: usize,
-    nominal_interval_ms: Option<f64>,
-    heart_rate_bpm: Option<f64>,
-}
 
 /// A series found in a folder.
 #[derive(Debug, Clone)]
@@ -92,129 +73,6 @@ pub fn dicom_files(dir: &Path) -> Result<Vec<PathBuf>, IoError> {
     Ok(all.into_iter().filter(|p| has_dicom_magic(p)).collect())
 }
 
-fn text(obj: &DefaultDicomObject, tag: ::dicom::core::Tag) -> String {
-    obj.element_opt(tag)
-        .ok()
-        .flatten()
-        .and_then(|e| e.to_str().ok())
-        .map(|s| s.trim().to_string())
-        .unwrap_or_default()
-}
-
-fn numbers(
-    obj: &DefaultDicomObject,
-    path: &Path,
-    tag: ::dicom::core::Tag,
-    name: &str,
-) -> Result<Option<Vec<f64>>, IoError> {
-    match obj.element_opt(tag) {
-        Ok(Some(e)) => e.to_multi_float64().map(Some).map_err(|err| {
-            IoError::content(path, format!("{name} {tag}: not a list of numbers: {err}"))
-        }),
-        _ => Ok(None),
-    }
-}
-
-fn fixed<const N: usize>(
-    v: Option<Vec<f64>>,
-    path: &Path,
-    tag: ::dicom::core::Tag,
-    name: &str,
-) -> Result<Option<[f64; N]>, IoError> {
-    match v {
-        None => Ok(None),
-        Some(v) => {
-            let arr: [f64; N] = v.clone().try_into().map_err(|_| {
-                IoError::content(
-                    path,
-                    format!("{name} {tag}: expected {N} values, found {}", v.len()),
-                )
-            })?;
-            if arr.iter().all(|x| x.is_finite()) {
-                Ok(Some(arr))
-            } else {
-                Err(IoError::content(
-                    path,
-                    format!("{name} {tag}: non-finite value in {v:?}"),
-                ))
-            }
-        }
-    }
-}
-
-fn read_header(path: &Path) -> Result<Header, IoError> {
-    let obj = OpenFileOptions::new()
-        .read_until(tags::PIXEL_DATA)
-        .open_file(path)
-        .map_err(|e| IoError::content(path, format!("not a readable DICOM file: {e}")))?;
-    let need = |v: Option<[f64; 6]>| {
-        v.ok_or_else(|| {
-            IoError::content(
-                path,
-                "ImageOrientationPatient (0020,0037) is missing".to_string(),
-            )
-        })
-    };
-    let orientation = need(fixed::<6>(
-        numbers(
-            &obj,
-            path,
-            tags::IMAGE_ORIENTATION_PATIENT,
-            "ImageOrientationPatient",
-        )?,
-        path,
-        tags::IMAGE_ORIENTATION_PATIENT,
-        "ImageOrientationPatient",
-    )?)?;
-    let position = fixed::<3>(
-        numbers(
-            &obj,
-            path,
-            tags::IMAGE_POSITION_PATIENT,
-            "ImagePositionPatient",
-        )?,
-        path,
-        tags::IMAGE_POSITION_PATIENT,
-        "ImagePositionPatient",
-    )?
-    .ok_or_else(|| IoError::content(path, "ImagePositionPatient (0020,0032) is missing"))?;
-    let spacing = fixed::<2>(
-        numbers(&obj, path, tags::PIXEL_SPACING, "PixelSpacing")?,
-        path,
-        tags::PIXEL_SPACING,
-        "PixelSpacing",
-    )?;
-    let one = |tag, name: &str| -> Result<Option<f64>, IoError> {
-        Ok(numbers(&obj, path, tag, name)?.and_then(|v| v.first().copied()))
-    };
-    let count = |tag, name: &str| -> Result<usize, IoError> {
-        one(tag, name)?
-            .filter(|v| *v >= 1.0 && v.fract() == 0.0)
-            .map(|v| v as usize)
-            .ok_or_else(|| {
-                IoError::content(
-                    path,
-                    format!("{name} {tag} is missing or not a positive count"),
-                )
-            })
-    };
-    Ok(Header {
-        path: path.to_path_buf(),
-        series_uid: text(&obj, tags::SERIES_INSTANCE_UID),
-        description: text(&obj, tags::SERIES_DESCRIPTION),
-        orientation,
-        position,
-        spacing,
-        thickness: one(tags::SLICE_THICKNESS, "SliceThickness")?,
-        trigger_ms: one(tags::TRIGGER_TIME, "TriggerTime")?,
-        instance: one(tags::INSTANCE_NUMBER, "InstanceNumber")?.map(|v| v as i64),
-        rows: count(tags::ROWS, "Rows")?,
-        cols: count(tags::COLUMNS, "Columns")?,
-        nominal_interval_ms: one(tags::NOMINAL_INTERVAL, "NominalInterval")?,
-        heart_rate_bpm: one(tags::HEART_RATE, "HeartRate")?,
-    })
-}
-
 fn cross(a: [f64; 3], b: [f64; 3]) -> [f64; 3] {
     [
         a[1] * b[2] - a[2] * b[1],
@@ -235,7 +93,11 @@ fn headers(dir: &Path) -> Result<Vec<Header>, IoError> {
             "no DICOM files (with the DICM preamble) in this folder",
         ));
     }
-    files.iter().map(|p| read_header(p)).collect()
+    let mut all = Vec::new();
+    for p in &files {
+        all.extend(header::read_headers(p)?);
+    }
+    Ok(all)
 }
 
 fn summarise(all: &[Header]) -> Vec<SeriesSummary> {
@@ -445,43 +307,28 @@ pub fn read_dicom_series(dir: &Path, series: Option<&str>) -> Result<ImageSeries
     let (nr, nc) = (first.rows, first.cols);
     let mut stack = Array4::<f32>::zeros((slices.len(), frames, nr, nc));
     let mut files = Vec::with_capacity(images.len());
+    // Each file is decoded once (an enhanced file holds many frames).
+    let mut decoded: HashMap<&Path, Array4<f32>> = HashMap::new();
     for (k, (_, list)) in slices.iter().enumerate() {
         for (f, h) in list.iter().enumerate() {
-            let obj = ::dicom::object::open_file(&h.path).map_err(|e| {
-                IoError::content(&h.path, format!("not a readable DICOM file: {e}"))
-            })?;
-            let px = obj
-                .decode_pixel_data()
-                .and_then(|d| d.to_ndarray::<f32>())
-                .map_err(|e| {
-                    IoError::content(
-                        &h.path,
-                        format!(
-                            "pixel data (transfer syntax {}) cannot be decoded: {e}",
-                            obj.meta().transfer_syntax()
-                        ),
-                    )
-                })?;
-            if px.dim() != (1, nr, nc, 1) {
-                return Err(IoError::content(
-                    &h.path,
-                    format!(
-                        "pixel data has shape {:?}; expected one frame of {nr} × {nc}, one sample",
-                        px.dim()
-                    ),
-                ));
+            if !decoded.contains_key(h.path.as_path()) {
+                decoded.insert(&h.path, decode(h, nr, nc)?);
             }
-            if let Some(v) = px.iter().find(|v| !v.is_finite()) {
-                return Err(IoError::content(
-                    &h.path,
-                    format!("non-finite pixel value {v}"),
-                ));
-            }
+            let px = decoded[h.path.as_path()].slice(s![h.frame, .., .., 0]);
+            let (slope, intercept) = h.rescale;
             stack
                 .slice_mut(s![k, f, .., ..])
-                .assign(&px.slice(s![0, .., .., 0]));
-            files.push(h.path.clone());
+                .zip_mut_with(&px, |o, v| *o = (f64::from(*v) * slope + intercept) as f32);
+            if !files.contains(&h.path) {
+                files.push(h.path.clone());
+            }
         }
+    }
+    if let Some(v) = stack.iter().find(|v| !v.is_finite()) {
+        return Err(IoError::content(
+            dir,
+            format!("non-finite pixel value {v} after rescaling"),
+        ));
     }
     Ok(ImageSeries {
         images: stack,
@@ -494,6 +341,43 @@ pub fn read_dicom_series(dir: &Path, series: Option<&str>) -> Result<ImageSeries
     })
 }
 
+/// All frames of one file as `[frame, row, col, sample]`: with the modality LUT applied for
+/// classic images, as stored for enhanced ones (their rescale is per frame, applied by the
+/// caller from the functional groups).
+fn decode(h: &Header, rows: usize, cols: usize) -> Result<Array4<f32>, IoError> {
+    use ::dicom::pixeldata::{ConvertOptions, ModalityLutOption};
+    let obj = ::dicom::object::open_file(&h.path)
+        .map_err(|e| IoError::content(&h.path, format!("not a readable DICOM file: {e}")))?;
+    let options = if h.enhanced {
+        ConvertOptions::new().with_modality_lut(ModalityLutOption::None)
+    } else {
+        ConvertOptions::new()
+    };
+    let px = obj
+        .decode_pixel_data()
+        .and_then(|d| d.to_ndarray_with_options::<f32>(&options))
+        .map_err(|e| {
+            IoError::content(
+                &h.path,
+                format!(
+                    "pixel data (transfer syntax {}) cannot be decoded: {e}",
+                    obj.meta().transfer_syntax()
+                ),
+            )
+        })?;
+    let (n, r, c, samples) = px.dim();
+    if (r, c, samples) != (rows, cols, 1) || n <= h.frame {
+        return Err(IoError::content(
+            &h.path,
+            format!(
+                "pixel data has shape {:?}; expected frames of {rows} × {cols}, one sample",
+                px.dim()
+            ),
+        ));
+    }
+    Ok(px)
+}
+
 fn describe(found: &[SeriesSummary]) -> String {
     found
         .iter()
@@ -502,5 +386,6 @@ fn describe(found: &[SeriesSummary]) -> String {
         .join("; ")
 }
 
+mod header;
 mod write;
 pub use write::{derived_uid, write_dicom_series, SeriesLabel};
