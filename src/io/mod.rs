@@ -121,7 +121,7 @@ pub fn read_images(path: &Path, series: Option<&str>) -> Result<npy::ImageSeries
         let has_npy = std::fs::read_dir(path)
             .map_err(|e| IoError::file(path, "cannot list folder", e))?
             .filter_map(|e| e.ok())
-            .any(|e| e.path().extension().is_some_and(|x| x == "npy"));
+            .any(|e| npy::is_numpy(&e.path()));
         match (niftis.len(), has_npy) {
             (1, false) => return nifti::read_nifti_series(&niftis[0]),
             (n, _) if n > 1 => {
@@ -142,7 +142,7 @@ pub fn read_images(path: &Path, series: Option<&str>) -> Result<npy::ImageSeries
                 if self::dicom::dicom_files(path)?.is_empty() {
                     return Err(IoError::content(
                         path,
-                        "no image series here: no DICOM files, no .nii/.nii.gz, no .npy",
+                        "no image series here: no DICOM files, no .nii/.nii.gz, no .npy/.npz",
                     ));
                 }
                 return self::dicom::read_dicom_series(path, series);

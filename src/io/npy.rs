@@ -4,7 +4,7 @@
 use std::path::{Path, PathBuf};
 
 use ndarray::{Array4, ArrayView4};
-use ndarray_npy::{ReadNpyExt, WriteNpyExt};
+use ndarray_npy::{NpzReader, ReadNpyExt, WriteNpyExt};
 use num_complex::Complex32;
 
 use super::{file_names, write_atomic, write_atomic_with, IoError};
@@ -34,7 +34,13 @@ pub struct ImageSeries {
     pub positions_mm: Option<Vec<f64>>,
 }
 
-/// Reads an image folder (or the `.npy` file inside one) with its `geometry.json` sidecar.
+/// Whether a path names a NumPy array file (`.npy`, or an `.npz` archive).
+pub fn is_numpy(path: &Path) -> bool {
+    path.extension().is_some_and(|x| x == "npy" || x == "npz")
+}
+
+/// Reads an image folder (or the `.npy`/`.npz` file inside one) with its `geometry.json`
+/// sidecar. An `.npz` archive must hold one array, or one named `images`.
 ///
 /// # Errors
 /// [`IoError`] naming the file and what is wrong: no or several `.npy` files, wrong dtype
@@ -44,17 +50,22 @@ pub fn read_image_series(path: &Path) -> Result<ImageSeries, IoError> {
         let mut npys: Vec<PathBuf> = std::fs::read_dir(path)
             .map_err(|e| IoError::file(path, "cannot list folder", e))?
             .filter_map(|e| e.ok().map(|e| e.path()))
-            .filter(|p| p.extension().is_some_and(|x| x == "npy"))
+            .filter(|p| is_numpy(p))
             .collect();
         npys.sort();
         match npys.len() {
             1 => (path.to_path_buf(), npys.remove(0)),
-            0 => return Err(IoError::content(path, "no .npy image array in this folder")),
+            0 => {
+                return Err(IoError::content(
+                    path,
+                    "no .npy or .npz image array in this folder",
+                ))
+            }
             _ => {
                 return Err(IoError::content(
                     path,
                     format!(
-                        "several .npy files ({}); give the one to measure",
+                        "several .npy/.npz files ({}); give the one to measure",
                         file_names(&npys)
                     ),
                 ));
@@ -93,7 +104,47 @@ pub fn read_image_series(path: &Path) -> Result<ImageSeries, IoError> {
     })
 }
 
+/// The image array of an `.npz` archive: the one named `images`, or the only one.
+fn read_npz_images(file: &Path) -> Result<Array4<f32>, IoError> {
+    let f = std::fs::File::open(file).map_err(|e| IoError::file(file, "cannot open", e))?;
+    let mut npz = NpzReader::new(f)
+        .map_err(|e| IoError::content(file, format!("not a readable .npz archive: {e}")))?;
+    let names = npz
+        .names()
+        .map_err(|e| IoError::content(file, format!("cannot list the .npz archive: {e}")))?;
+    let name = match names.iter().find(|n| *n == "images" || *n == "images.npy") {
+        Some(n) => n.clone(),
+        None if names.len() == 1 => names[0].clone(),
+        None => {
+            return Err(IoError::content(
+                file,
+                format!(
+                    "the archive holds {} arrays ({}) and none is named `images`",
+                    names.len(),
+                    names.join(", ")
+                ),
+            ))
+        }
+    };
+    let wrong = |e: String| {
+        IoError::content(
+            file,
+            format!("array `{name}`: expected a 4-D float32 or float64 array [slice, frame, row, col]: {e}"),
+        )
+    };
+    match npz.by_name::<ndarray::OwnedRepr<f32>, ndarray::Ix4>(&name) {
+        Ok(a) => Ok(a),
+        Err(first) => npz
+            .by_name::<ndarray::OwnedRepr<f64>, ndarray::Ix4>(&name)
+            .map(|a| a.mapv(|v| v as f32))
+            .map_err(|_| wrong(first.to_string())),
+    }
+}
+
 fn read_f32_4d(file: &Path) -> Result<Array4<f32>, IoError> {
+    if file.extension().is_some_and(|x| x == "npz") {
+        return read_npz_images(file);
+    }
     let open = || std::fs::File::open(file).map_err(|e| IoError::file(file, "cannot open", e));
     match Array4::<f32>::read_npy(open()?) {
         Ok(a) => Ok(a),
