@@ -314,6 +314,9 @@ fn simulate_then_measure_matches_truth_and_bad_seeds_are_named() {
     assert!(measured.join("measurements.csv").exists());
     let stdout: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(stdout["runs"][0]["ef_pct"], run["ef_pct"]);
+    let seed_slice =
+        cinegauge::segment::seeds::read_seeds(&sim.join("seeds.toml")).unwrap()[0].slice;
+    check_masks_and_preview(&measured, run, seed_slice);
 
     // A seed in the air at the image corner, and a seed beyond the last row.
     let cases = [
@@ -442,5 +445,68 @@ fn external_reconstructions_enter_under_their_label() {
         let o = run(bad, "bad");
         assert_eq!(o.status.code(), Some(1), "{bad}");
         assert!(text(&o).contains(needle), "{bad}: {}", text(&o));
+    }
+}
+
+/// The masks file agrees with the reported areas (pixel count × pixel area, per slice and
+/// frame, to 1e-9 relative), and the preview's contour pixels are exactly the edge pixels
+/// (inside, with a 4-neighbour outside) of the seed slice's ED and ES masks.
+fn check_masks_and_preview(measured: &std::path::Path, run: &serde_json::Value, slice: usize) {
+    let masks = cinegauge::io::read_images(&measured.join("lv_masks.nii.gz"), None).unwrap();
+    let g = &masks.geometry;
+    let pixel_mm2 = g.row_spacing_mm * g.col_spacing_mm;
+    let areas = run["slice_areas_mm2"].as_array().unwrap();
+    for (k, per_frame) in areas.iter().enumerate() {
+        for (f, a) in per_frame.as_array().unwrap().iter().enumerate() {
+            let count = masks
+                .images
+                .slice(ndarray::s![k, f, .., ..])
+                .iter()
+                .filter(|v| **v == 1.0)
+                .count();
+            let a = a.as_f64().unwrap();
+            // Voxel sizes pass through float32 in the NIfTI header: 1e-6 relative.
+            assert!(
+                (count as f64 * pixel_mm2 - a).abs() <= 1e-6 * a.max(1.0),
+                "slice {k} frame {f}"
+            );
+        }
+    }
+    let png = image::open(measured.join("ed_es.png")).unwrap().to_rgb8();
+    let (_, _, rows, cols) = masks.images.dim();
+    assert_eq!(png.dimensions(), (2 * cols as u32 + 4, rows as u32));
+    for (i, frame) in [
+        run["ed_frame"].as_u64().unwrap(),
+        run["es_frame"].as_u64().unwrap(),
+    ]
+    .into_iter()
+    .enumerate()
+    {
+        let m = masks
+            .images
+            .slice(ndarray::s![slice, frame as usize, .., ..]);
+        let inside = |r: isize, c: isize| {
+            r >= 0
+                && c >= 0
+                && (r as usize) < rows
+                && (c as usize) < cols
+                && m[(r as usize, c as usize)] == 1.0
+        };
+        for r in 0..rows as isize {
+            for c in 0..cols as isize {
+                let edge = inside(r, c)
+                    && [(-1, 0), (1, 0), (0, -1), (0, 1)]
+                        .iter()
+                        .any(|(dr, dc)| !inside(r + dr, c + dc));
+                let px = png
+                    .get_pixel(i as u32 * (cols as u32 + 4) + c as u32, r as u32)
+                    .0;
+                assert_eq!(
+                    px == cinegauge::io::png::CONTOUR,
+                    edge,
+                    "panel {i} at ({r}, {c})"
+                );
+            }
+        }
     }
 }

@@ -19,7 +19,8 @@ use cinegauge::segment::{seeds, SegmentParams};
 The images are a DICOM folder (searched recursively; --series picks one of several), a NIfTI-1 \
 file (.nii, .nii.gz; axes col, row, slice, frame) or a folder holding one, or a folder with one \
 .npy [slice, frame, row, col] and its geometry.json. Writes \
-DIR/measurements.json and DIR/measurements.csv. Research use only; not for diagnostic use."
+DIR/measurements.json, DIR/measurements.csv, DIR/lv_masks.nii.gz (the LV masks, 1 inside the \
+blood pool) and DIR/ed_es.png (the seed's slice at ED and ES with the contour). Research use only; not for diagnostic use."
 )]
 pub struct MeasureArgs {
     /// DICOM folder, NIfTI-1 file, or image folder (one .nii/.nii.gz, or one .npy + geometry.json).
@@ -99,6 +100,8 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
         accel_nominal: a.accel,
         accel_effective: a.accel_effective.unwrap_or(a.accel),
     };
+    io::ensure_dir(&a.out).context("preparing the output folder")?;
+    write_pictures(&a.out, &series, &seg, &vol, seed_list[0].slice)?;
     let row = pipeline::result_row(&a.subject, &plan, Ok((seg, vol)), &params, None);
     let inputs = vec![
         InputHash {
@@ -111,7 +114,6 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
         },
     ];
     let file = ResultsFile::new(&a.subject, inputs, vec![row]);
-    io::ensure_dir(&a.out).context("preparing the output folder")?;
     file.write(&a.out, "measurements")
         .context("writing measurements")?;
     if a.json {
@@ -129,3 +131,40 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
     }
     Ok(())
 }
+
+/// `lv_masks.nii.gz` (1 inside the blood pool) and `ed_es.png` (the seed's slice at ED and
+/// ES with the contour; window 0 to the 99.5th percentile of that slice).
+fn write_pictures(
+    out: &std::path::Path,
+    series: &io::npy::ImageSeries,
+    seg: &cinegauge::segment::Segmentation,
+    vol: &cinegauge::measure::Volumetry,
+    slice: usize,
+) -> anyhow::Result<()> {
+    let masks = seg.masks.mapv(u8::from);
+    io::nifti::write_nifti_series(&out.join(MASKS), masks.view(), &series.geometry)
+        .context("writing the masks")?;
+    let n = &vol.numbers;
+    let im = series.images.index_axis(ndarray::Axis(0), slice);
+    let mut values: Vec<f32> = im.iter().copied().collect();
+    values.sort_by(f32::total_cmp);
+    let hi = values[((values.len() - 1) as f64 * 0.995) as usize];
+    let panel = |f: usize| {
+        (
+            im.index_axis(ndarray::Axis(0), f),
+            seg.masks.slice(ndarray::s![slice, f, .., ..]),
+        )
+    };
+    io::png::write_panels(
+        &out.join(PREVIEW),
+        &[panel(n.ed_frame), panel(n.es_frame)],
+        (0.0, hi),
+    )
+    .context("writing the preview")?;
+    Ok(())
+}
+
+/// File name of the LV masks written by `measure`.
+const MASKS: &str = "lv_masks.nii.gz";
+/// File name of the ED/ES preview written by `measure`.
+const PREVIEW: &str = "ed_es.png";

@@ -3,6 +3,7 @@
 pub mod dicom;
 pub mod nifti;
 pub mod npy;
+pub mod png;
 
 use std::io::Write;
 use std::path::{Path, PathBuf};
