@@ -151,11 +151,16 @@ fn reconstruct_writes_a_measurable_folder_and_is_deterministic() {
             "4",
             "--out",
             out.to_str().unwrap(),
+            "--nifti",
+            "--dicom",
+            "--subject",
+            "RC-01",
             "--quiet",
         ]);
         assert!(o.status.success(), "{}", text(&o));
         outs.push(out);
     }
+    check_other_formats(&outs[0], &outs[1]);
     assert!(
         std::fs::read(outs[0].join("images.npy")).unwrap()
             == std::fs::read(outs[1].join("images.npy")).unwrap(),
@@ -508,5 +513,53 @@ fn check_masks_and_preview(measured: &std::path::Path, run: &serde_json::Value, 
                 );
             }
         }
+    }
+}
+
+/// `--nifti` and `--dicom` outputs: the NIfTI holds exactly the .npy images; the DICOM series
+/// holds them to 16-bit quantisation (≤ max/65535), carries the subject code as patient name
+/// and is byte-identical between two identical runs.
+fn check_other_formats(a: &std::path::Path, b: &std::path::Path) {
+    use cinegauge::io;
+    let npy = io::read_images(&a.join("images.npy"), None).unwrap();
+    let nii = io::read_images(&a.join("images.nii.gz"), None).unwrap();
+    assert_eq!(npy.images, nii.images);
+    let dcm = io::read_images(&a.join("dicom"), None).unwrap();
+    let max = npy.images.iter().cloned().fold(0.0f32, f32::max);
+    let worst = npy
+        .images
+        .iter()
+        .zip(dcm.images.iter())
+        .map(|(x, y)| (x - y).abs())
+        .fold(0.0f32, f32::max);
+    assert!(
+        worst <= max / 65535.0,
+        "DICOM pixel error {worst} of max {max}"
+    );
+    assert_eq!(
+        dcm.geometry.trigger_times_ms.len(),
+        npy.geometry.trigger_times_ms.len()
+    );
+    let mut names: Vec<_> = std::fs::read_dir(a.join("dicom"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    names.sort();
+    let first = dicom::object::open_file(a.join("dicom").join(&names[0])).unwrap();
+    let patient = first
+        .element(dicom::dictionary_std::tags::PATIENT_NAME)
+        .unwrap()
+        .to_str()
+        .unwrap()
+        .trim()
+        .to_string();
+    assert_eq!(patient, "RC-01");
+    for n in &names {
+        let (x, y) = (a.join("dicom").join(n), b.join("dicom").join(n));
+        assert_eq!(
+            std::fs::read(x).unwrap(),
+            std::fs::read(y).unwrap(),
+            "{n:?}"
+        );
     }
 }

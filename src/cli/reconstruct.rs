@@ -18,7 +18,8 @@ use cinegauge::sampling::{Pattern, SamplingSpec, DEFAULT_ACS_LINES};
 #[command(
     after_help = "Example:\n  cinegauge reconstruct --kspace sim/kspace --pattern variable-density --accel 8 \\\n      --method xf-sparse --set iterations=60 --out sim/xf-r8\n\n\
 Writes DIR/images.npy [slice, frame, row, col], DIR/geometry.json and DIR/recon.json; the folder \
-feeds `cinegauge measure --images DIR` directly. `cinegauge methods` and `cinegauge patterns` list \
+feeds `cinegauge measure --images DIR` directly. --nifti adds DIR/images.nii.gz, --dicom adds \
+DIR/dicom/ (a derived MR image series for viewers; patient name and ID are the --subject code). `cinegauge methods` and `cinegauge patterns` list \
 the choices. Research use only; not for diagnostic use."
 )]
 pub struct ReconstructArgs {
@@ -49,6 +50,15 @@ pub struct ReconstructArgs {
     /// Output folder (created if needed).
     #[arg(long, value_name = "DIR")]
     pub out: PathBuf,
+    /// Also write the images as NIfTI-1 (DIR/images.nii.gz).
+    #[arg(long)]
+    pub nifti: bool,
+    /// Also write the images as a derived MR DICOM series (DIR/dicom/).
+    #[arg(long)]
+    pub dicom: bool,
+    /// Subject code written into DICOM output (a code, never a patient's name).
+    #[arg(long, value_name = "CODE", default_value = "subject")]
+    pub subject: String,
 }
 
 #[derive(Serialize)]
@@ -121,6 +131,24 @@ pub fn run(a: ReconstructArgs, quiet: bool) -> anyhow::Result<()> {
         .context("reconstructing")?;
     io::ensure_dir(&a.out)?;
     npy::write_image_series(&a.out, stack.view(), &folder.geometry)?;
+    if a.nifti {
+        io::nifti::write_nifti_series(
+            &a.out.join("images.nii.gz"),
+            stack.view(),
+            &folder.geometry,
+        )?;
+    }
+    if a.dicom {
+        let dir = a.out.join("dicom");
+        io::ensure_dir(&dir)?;
+        let description = format!("{} {} R={}", method.id(), pattern.id(), a.accel);
+        let label = io::dicom::SeriesLabel {
+            subject: &a.subject,
+            description: &description,
+            number: 1,
+        };
+        io::dicom::write_dicom_series(&dir, stack.view(), &folder.geometry, &label)?;
+    }
     let mut hashes = Vec::new();
     for p in &folder.slices {
         hashes.push((
