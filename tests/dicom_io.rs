@@ -119,6 +119,15 @@ fn broken_series_are_refused_naming_the_file_and_attribute() {
             "bad_truncated",
             &["IM0000.dcm", "not a readable DICOM file"][..],
         ),
+        (
+            "bad_jpeg2000",
+            &[
+                "IM0000.dcm",
+                "1.2.840.10008.1.2.4.90",
+                "JPEG 2000",
+                "cannot be decoded",
+            ][..],
+        ),
     ] {
         let err = io::read_images(&fixture(folder), None)
             .unwrap_err()

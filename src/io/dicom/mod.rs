@@ -360,8 +360,8 @@ fn decode(h: &Header, rows: usize, cols: usize) -> Result<Array4<f32>, IoError> 
             IoError::content(
                 &h.path,
                 format!(
-                    "pixel data (transfer syntax {}) cannot be decoded: {e}",
-                    obj.meta().transfer_syntax()
+                    "pixel data in transfer syntax {} cannot be decoded by this build: {e}",
+                    transfer_syntax_name(obj.meta().transfer_syntax())
                 ),
             )
         })?;
@@ -376,6 +376,16 @@ fn decode(h: &Header, rows: usize, cols: usize) -> Result<Array4<f32>, IoError> 
         ));
     }
     Ok(px)
+}
+
+/// `UID (name)` of a transfer syntax, the name from the registry when it is known.
+fn transfer_syntax_name(uid: &str) -> String {
+    use ::dicom::encoding::TransferSyntaxIndex;
+    let uid = uid.trim_end_matches('\0');
+    match ::dicom::transfer_syntax::TransferSyntaxRegistry.get(uid) {
+        Some(ts) => format!("{uid} ({})", ts.name()),
+        None => uid.to_string(),
+    }
 }
 
 fn describe(found: &[SeriesSummary]) -> String {
