@@ -198,12 +198,17 @@ fn nrmse(a: &Array3<f32>, truth: &Array3<f32>) -> f64 {
     (num / den).sqrt()
 }
 
-#[test]
-fn cg_sense_recovers_shepp_logan_at_r2() {
-    // Source: Shepp & Logan 1974 phantom; noise-free, analytic coil maps, equispaced R = 2
-    // without calibration lines. CG on the well-conditioned R = 2 SENSE system converges to
-    // the exact image, so NRMSE < 1e-3 (issue 3's acceptance value).
-    let n = 96;
+/// Shepp–Logan of `n × n`, 8 analytic coil maps, and its noise-free k-space sampled
+/// equispaced at R = 2 without calibration lines.
+fn shepp_logan_r2(
+    n: usize,
+) -> (
+    Array3<Complex32>,
+    Array3<Complex32>,
+    CenteredFft2,
+    SamplingMask,
+    Array4<Complex32>,
+) {
     let x = shepp_logan(n);
     let sens = analytic_maps(8, n, n);
     let fft = CenteredFft2::new(n, n);
@@ -213,6 +218,15 @@ fn cg_sense_recovers_shepp_logan_at_r2() {
         .unwrap();
     let mut k = simulate_kspace(&x, &sens, &fft);
     mask.apply(k.view_mut());
+    (x, sens, fft, mask, k)
+}
+
+#[test]
+fn cg_sense_recovers_shepp_logan_at_r2() {
+    // Source: Shepp & Logan 1974 phantom; noise-free, analytic coil maps, equispaced R = 2
+    // without calibration lines. CG on the well-conditioned R = 2 SENSE system converges to
+    // the exact image, so NRMSE < 1e-3 (issue 3's acceptance value).
+    let (x, sens, fft, mask, k) = shepp_logan_r2(96);
     let m = recon::by_id("cg-sense").unwrap();
     let p = Params::resolve(
         m,
@@ -530,4 +544,28 @@ fn singular_value_thresholding_matches_the_analytic_result() {
         .sqrt();
     let size = sigma.iter().map(|s| s * s).sum::<f64>().sqrt();
     assert!(err <= 1e-4 * size, "SVT error {err} (‖C‖ = {size})");
+}
+
+#[test]
+fn iterations_stop_at_the_precision_floor_even_without_a_tolerance() {
+    // Noise-free Shepp–Logan at R = 2 (as above): CG on this well-conditioned system converges
+    // to rounding level long before 300 iterations (CG theory: exact in at most n steps for n
+    // unknowns; in practice a few dozen here). With tolerance 0 it must still stop once the
+    // residual is below the f32 floor, instead of iterating on rounding noise.
+    let (_, sens, fft, mask, k) = shepp_logan_r2(64);
+    let m = recon::by_id("cg-sense").unwrap();
+    let given = [("iterations", "300"), ("tolerance", "0"), ("lambda", "0")]
+        .map(|(a, b)| (a.to_string(), b.to_string()));
+    let p = Params::resolve(m, &given).unwrap();
+    let out = run_on(m, k.view(), &mask, &fft, Some(&sens), &p).unwrap();
+    assert!(
+        out.iterations < 300,
+        "ran all {} iterations",
+        out.iterations
+    );
+    let last = *out.residuals.last().unwrap();
+    assert!(
+        last < cinegauge::recon::operator::RESIDUAL_FLOOR,
+        "last residual {last:e}"
+    );
 }
