@@ -5,6 +5,8 @@ use std::process::{Command, Output};
 
 use cinegauge::tolerances::{EDV_REL_FULLY_SAMPLED, EF_PP_FULLY_SAMPLED};
 
+mod common;
+
 fn cinegauge(args: &[&str]) -> Output {
     Command::new(env!("CARGO_BIN_EXE_cinegauge"))
         .args(args)
@@ -526,12 +528,7 @@ fn check_other_formats(a: &std::path::Path, b: &std::path::Path) {
     assert_eq!(npy.images, nii.images);
     let dcm = io::read_images(&a.join("dicom"), None).unwrap();
     let max = npy.images.iter().cloned().fold(0.0f32, f32::max);
-    let worst = npy
-        .images
-        .iter()
-        .zip(dcm.images.iter())
-        .map(|(x, y)| (x - y).abs())
-        .fold(0.0f32, f32::max);
+    let worst = common::max_abs_diff(&npy.images, &dcm.images);
     assert!(
         worst <= max / 65535.0,
         "DICOM pixel error {worst} of max {max}"

@@ -114,28 +114,21 @@ pub fn read_images(path: &Path, series: Option<&str>) -> Result<npy::ImageSeries
         return nifti::read_nifti_series(path);
     }
     if path.is_dir() {
-        let listed = std::fs::read_dir(path)
+        let mut listed: Vec<PathBuf> = std::fs::read_dir(path)
             .map_err(|e| IoError::file(path, "cannot list folder", e))?
-            .filter_map(|e| e.ok().map(|e| e.path()));
-        let mut niftis: Vec<PathBuf> = listed.filter(|p| nifti::is_nifti(p)).collect();
-        niftis.sort();
-        let has_npy = std::fs::read_dir(path)
-            .map_err(|e| IoError::file(path, "cannot list folder", e))?
-            .filter_map(|e| e.ok())
-            .any(|e| npy::is_numpy(&e.path()));
+            .filter_map(|e| e.ok().map(|e| e.path()))
+            .collect();
+        listed.sort();
+        let has_npy = listed.iter().any(|p| npy::is_numpy(p));
+        let niftis: Vec<PathBuf> = listed.into_iter().filter(|p| nifti::is_nifti(p)).collect();
         match (niftis.len(), has_npy) {
             (1, false) => return nifti::read_nifti_series(&niftis[0]),
             (n, _) if n > 1 => {
-                let names: Vec<String> = niftis
-                    .iter()
-                    .filter_map(|p| p.file_name())
-                    .map(|n| n.to_string_lossy().into_owned())
-                    .collect();
                 return Err(IoError::content(
                     path,
                     format!(
                         "several NIfTI files ({}); give the one to read",
-                        names.join(", ")
+                        file_names(&niftis)
                     ),
                 ));
             }

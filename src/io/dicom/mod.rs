@@ -8,7 +8,7 @@
 //! attributes needed for geometry and timing are read; nothing identifying the patient is
 //! kept.
 
-use std::collections::{BTreeMap, HashMap};
+use std::collections::{BTreeMap, HashMap, HashSet};
 use std::io::Read;
 use std::path::{Path, PathBuf};
 
@@ -309,6 +309,7 @@ pub fn read_dicom_series(dir: &Path, series: Option<&str>) -> Result<ImageSeries
     let mut files = Vec::with_capacity(images.len());
     // Each file is decoded once (an enhanced file holds many frames).
     let mut decoded: HashMap<&Path, Array4<f32>> = HashMap::new();
+    let mut seen: HashSet<&Path> = HashSet::new();
     for (k, (_, list)) in slices.iter().enumerate() {
         for (f, h) in list.iter().enumerate() {
             if !decoded.contains_key(h.path.as_path()) {
@@ -319,7 +320,7 @@ pub fn read_dicom_series(dir: &Path, series: Option<&str>) -> Result<ImageSeries
             stack
                 .slice_mut(s![k, f, .., ..])
                 .zip_mut_with(&px, |o, v| *o = (f64::from(*v) * slope + intercept) as f32);
-            if !files.contains(&h.path) {
+            if seen.insert(h.path.as_path()) {
                 files.push(h.path.clone());
             }
         }
