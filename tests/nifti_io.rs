@@ -116,7 +116,7 @@ fn phantom_through_nifti_measures_the_same_as_in_memory() {
 }
 
 #[test]
-fn measure_accepts_a_nifti_file() {
+fn measure_refuses_a_bad_nifti_naming_the_field() {
     let exe = env!("CARGO_BIN_EXE_cinegauge");
     let dir = tempfile::tempdir().unwrap();
     let seeds = dir.path().join("seeds.toml");
