@@ -560,3 +560,37 @@ fn check_other_formats(a: &std::path::Path, b: &std::path::Path) {
         );
     }
 }
+
+/// Without the `ismrmrd` feature an ISMRMRD file is recognised and refused with the rebuild
+/// instruction (the default build needs no system HDF5 library).
+#[cfg(not(feature = "ismrmrd"))]
+#[test]
+fn ismrmrd_file_without_the_feature_says_how_to_rebuild() {
+    let file = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/fixtures/ismrmrd/cine.h5"
+    );
+    for args in [
+        vec!["inspect", file],
+        vec![
+            "reconstruct",
+            "--kspace",
+            file,
+            "--pattern",
+            "full",
+            "--method",
+            "reference",
+            "--out",
+            "/nonexistent-never-written",
+        ],
+    ] {
+        let o = cinegauge(&args);
+        let t = text(&o);
+        assert!(!o.status.success() && !t.contains("panicked"), "{t}");
+        assert!(
+            t.contains("cine.h5")
+                && t.contains("rebuild with `--features ismrmrd` (needs libhdf5-dev)"),
+            "{t}"
+        );
+    }
+}

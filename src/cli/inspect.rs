@@ -7,14 +7,14 @@ use clap::Args;
 use serde_json::{json, Value};
 
 use cinegauge::geometry::Geometry;
-use cinegauge::io::{self, npy};
+use cinegauge::io;
 
 /// Arguments of `inspect`.
 #[derive(Debug, Args)]
 #[command(
     after_help = "Examples:\n  cinegauge inspect sim/reference\n  cinegauge inspect study/cine.nii.gz --json\n\n\
-Reads image series (DICOM folders, NIfTI-1, or .npy + geometry.json) and raw k-space folders (slice_NN.npy + \
-geometry.json) and prints dimensions, spacing, slice positions along the normal, frames, trigger \
+Reads image series (DICOM folders, NIfTI-1, or .npy + geometry.json) and raw k-space (slice_NN.npy folders + \
+geometry.json, ISMRMRD files) and prints dimensions, spacing, slice positions along the normal, frames, trigger \
 times, heart rate and warnings. Nothing is written. Research use only; not for diagnostic use."
 )]
 pub struct InspectArgs {
@@ -27,16 +27,6 @@ pub struct InspectArgs {
     /// Print the findings as JSON on stdout.
     #[arg(long)]
     pub json: bool,
-}
-
-fn is_kspace_folder(path: &Path) -> bool {
-    path.is_dir()
-        && std::fs::read_dir(path).is_ok_and(|entries| {
-            entries.filter_map(|e| e.ok()).any(|e| {
-                let name = e.file_name().to_string_lossy().into_owned();
-                name.starts_with("slice_") && name.ends_with(".npy")
-            })
-        })
 }
 
 /// The series of a DICOM folder when there are several and none was chosen.
@@ -69,17 +59,17 @@ fn geometry_json(g: &Geometry, slices: usize, positions: Option<&[f64]>) -> Valu
 }
 
 pub fn run(a: InspectArgs) -> anyhow::Result<()> {
-    let found = if is_kspace_folder(&a.path) {
-        let k = npy::open_kspace_folder(&a.path).context("reading the k-space folder")?;
+    let found = if io::kspace::is_raw_kspace(&a.path) {
+        let k = io::kspace::open_kspace(&a.path).context("reading the raw k-space")?;
         let (s, c, f, ky, kx) = k.dims;
         let mut v = json!({
             "path": a.path.display().to_string(),
-            "kind": "raw k-space (.npy per slice)",
+            "kind": k.kind,
             "dims": {"slices": s, "coils": c, "frames": f, "ky": ky, "kx": kx},
             "noise_covariance": k.noise_cov.is_some(),
-            "warnings": k.unknown_keys.iter().map(|u| format!("geometry.json: unknown key `{u}` ignored")).collect::<Vec<_>>(),
+            "warnings": k.warnings,
         });
-        v["geometry"] = geometry_json(&k.geometry, s, None);
+        v["geometry"] = geometry_json(&k.geometry, s, k.positions_mm.as_deref());
         v
     } else if let Some(list) = several_dicom_series(&a.path, a.series.as_deref())? {
         json!({

@@ -23,7 +23,8 @@ DIR/dicom/ (a derived MR image series for viewers; patient name and ID are the -
 the choices. Research use only; not for diagnostic use."
 )]
 pub struct ReconstructArgs {
-    /// Raw k-space folder (slice_NN.npy [coil, frame, ky, kx] + geometry.json).
+    /// Raw k-space: a folder of slice_NN.npy [coil, frame, ky, kx] + geometry.json, or an
+    /// ISMRMRD file (.h5; needs a build with `--features ismrmrd`).
     #[arg(long, value_name = "PATH")]
     pub kspace: PathBuf,
     /// Sampling pattern (see `cinegauge patterns`).
@@ -91,12 +92,9 @@ pub fn run(a: ReconstructArgs, quiet: bool) -> anyhow::Result<()> {
     let params = Params::resolve(method, &given)?;
     let pattern = Pattern::from_id(&a.pattern)?;
     let sampling = SamplingSpec::new(pattern, a.accel, a.acs_lines)?.with_rng_seed(a.rng_seed);
-    let folder = npy::open_kspace_folder(&a.kspace).context("reading the k-space folder")?;
-    for k in &folder.unknown_keys {
-        say(
-            quiet,
-            &format!("warning: geometry.json: unknown key `{k}` ignored"),
-        );
+    let folder = io::kspace::open_kspace(&a.kspace).context("reading the raw k-space")?;
+    for w in &folder.warnings {
+        say(quiet, &format!("warning: {w}"));
     }
     let whitening = folder
         .noise_cov
@@ -150,7 +148,7 @@ pub fn run(a: ReconstructArgs, quiet: bool) -> anyhow::Result<()> {
         io::dicom::write_dicom_series(&dir, stack.view(), &folder.geometry, &label)?;
     }
     let mut hashes = Vec::new();
-    for p in &folder.slices {
+    for p in &folder.files {
         hashes.push((
             p.file_name()
                 .map(|n| n.to_string_lossy().into_owned())

@@ -1,6 +1,8 @@
 //! Reading and writing study data; every write is atomic (temporary file, then rename).
 
 pub mod dicom;
+pub mod ismrmrd;
+pub mod kspace;
 pub mod nifti;
 pub mod npy;
 pub mod png;

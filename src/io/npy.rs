@@ -315,15 +315,7 @@ pub fn open_kspace_folder(dir: &Path) -> Result<KspaceFolder, IoError> {
                 format!("expected [{nc} coils, samples ≥ 2], found {:?}", s.dim()),
             ));
         }
-        let n = s.ncols() as f32;
-        Some(ndarray::Array2::from_shape_fn((nc, nc), |(i, j)| {
-            s.row(i)
-                .iter()
-                .zip(s.row(j).iter())
-                .map(|(a, b)| *a * b.conj())
-                .sum::<Complex32>()
-                / n
-        }))
+        Some(super::kspace::noise_covariance(s.view()))
     } else {
         None
     };
