@@ -110,6 +110,24 @@ fn a_sidecar_overrides_timing_and_unknown_keys_are_refused() {
     );
 }
 
+/// The binary on a non-Cartesian file: exit code 1 (the work could not be done), no panic,
+/// the file and the header field named.
+#[test]
+fn the_binary_refuses_a_radial_file_by_name() {
+    let run = Command::new(env!("CARGO_BIN_EXE_cinegauge"))
+        .arg("inspect")
+        .arg(fixture("radial.h5"))
+        .output()
+        .expect("runs");
+    let text = String::from_utf8_lossy(&run.stderr);
+    assert_eq!(run.status.code(), Some(1), "{text}");
+    assert!(!text.contains("panicked"), "{text}");
+    assert!(
+        text.contains("radial.h5") && text.contains("encoding/trajectory"),
+        "{text}"
+    );
+}
+
 #[test]
 fn non_cartesian_and_undersampled_files_are_refused_by_name() {
     let e = open_kspace(&fixture("radial.h5"))

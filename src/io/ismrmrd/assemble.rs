@@ -226,6 +226,11 @@ impl RawData {
         if coils == 0 {
             return Err(err(format!("acquisition {first}: active_channels is 0")));
         }
+        if let Some(n) = header.receiver_channels.filter(|n| *n != coils) {
+            warnings.push(format!(
+                "acquisitionSystemInformation/receiverChannels is {n}, the acquisitions hold {coils} channels; the acquisitions are read"
+            ));
+        }
         let (min1, _, center) = header.step1;
         let mut count = vec![0u32; ns * nf * ny];
         let mut lines = vec![Vec::new(); ns];
