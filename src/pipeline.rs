@@ -256,7 +256,7 @@ pub fn result_row(
         accel_effective: plan.accel_effective,
         status,
         numbers,
-        blood_pool_convention: params.convention.describe().into(),
+        blood_pool_convention: params.convention().describe().into(),
         messages,
         slice_areas_mm2: areas,
         truth,

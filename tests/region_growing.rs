@@ -5,7 +5,9 @@ mod common;
 
 use std::collections::VecDeque;
 
-use cinegauge::segment::grow::{component, fill_holes, grow, otsu, GrowFailure, GrowParams};
+use cinegauge::segment::grow::{
+    component, fill_holes, fill_holes_up_to, grow, otsu, GrowFailure, GrowParams,
+};
 use cinegauge::segment::seeds::parse_seeds;
 use cinegauge::segment::{segment, Seed, SegmentError, SegmentParams};
 use ndarray::{Array2, Array4};
@@ -98,7 +100,47 @@ fn component_matches_breadth_first_flood_fill() {
         );
         let m = img.mapv(|v| v > 0.5);
         assert_eq!(fill_holes(m.view()), naive_fill(&m), "holes, case {case}");
+        for max in [0, 2, 5] {
+            assert_eq!(
+                fill_holes_up_to(m.view(), max),
+                naive_fill_small(&m, max),
+                "holes up to {max} px, case {case}"
+            );
+        }
     }
+}
+
+/// `mask` with only the holes (8-connected, found by [`naive_fill`]) of at most `max` pixels
+/// filled, each hole measured by its own breadth-first flood.
+fn naive_fill_small(mask: &Array2<bool>, max: usize) -> Array2<bool> {
+    let holes = &naive_fill(mask) & &mask.mapv(|b| !b);
+    let mut out = mask.clone();
+    let mut seen = Array2::from_elem(mask.dim(), false);
+    for (p, &h) in holes.indexed_iter() {
+        if !h || seen[p] {
+            continue;
+        }
+        let (mut members, mut q) = (vec![p], VecDeque::from([p]));
+        seen[p] = true;
+        while let Some((r, c)) = q.pop_front() {
+            for (dr, dc) in (-1i64..=1).flat_map(|a| (-1i64..=1).map(move |b| (a, b))) {
+                let (nr, nc) = (r as i64 + dr, c as i64 + dc);
+                if nr < 0 || nc < 0 || nr >= mask.nrows() as i64 || nc >= mask.ncols() as i64 {
+                    continue;
+                }
+                let n = (nr as usize, nc as usize);
+                if holes[n] && !seen[n] {
+                    seen[n] = true;
+                    members.push(n);
+                    q.push_back(n);
+                }
+            }
+        }
+        if members.len() <= max {
+            members.into_iter().for_each(|m| out[m] = true);
+        }
+    }
+    out
 }
 
 #[test]

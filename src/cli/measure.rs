@@ -10,7 +10,7 @@ use cinegauge::io;
 use cinegauge::pipeline;
 use cinegauge::recon::ReconPlan;
 use cinegauge::results::{InputHash, ResultsFile};
-use cinegauge::segment::{seeds, SegmentParams};
+use cinegauge::segment::{seeds, BloodPoolConvention, SegmentParams};
 
 /// Arguments of `measure`.
 #[derive(Debug, Args)]
@@ -54,6 +54,10 @@ pub struct MeasureArgs {
     /// Print the measurements as JSON on stdout.
     #[arg(long)]
     pub json: bool,
+    /// Papillary muscles and trabeculae: counted in the blood pool (`in-pool`, the default)
+    /// or left out (`excluded`); both are accepted practice and every output says which.
+    #[arg(long, value_name = "RULE", default_value = "in-pool", value_parser = ["in-pool", "excluded"])]
+    pub papillary_muscles: String,
 }
 
 pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
@@ -90,7 +94,10 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
         say(quiet, &format!("warning: {}: {w}", series.path.display()));
     }
     let seed_list = seeds::read_seeds(&a.seeds).context("reading seeds")?;
-    let params = SegmentParams::default();
+    let mut params = SegmentParams::default();
+    if a.papillary_muscles == "excluded" {
+        params.grow.convention = BloodPoolConvention::PapillaryExcluded;
+    }
     let (seg, vol) =
         pipeline::measure_series(series.images.view(), &series.geometry, &seed_list, &params)
             .with_context(|| format!("measuring {}", series.path.display()))?;

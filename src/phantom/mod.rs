@@ -201,6 +201,11 @@ pub struct Truth {
     pub disc_volume_curve_ml: Vec<f64>,
     /// Exact continuous cavity volume per frame.
     pub continuous_volume_curve_ml: Vec<f64>,
+    /// Papillary-muscle area per slice and frame (slab average), `[slice][frame]`.
+    pub papillary_areas_mm2: Vec<Vec<f64>>,
+    /// Method-of-discs volume of the papillary muscles per frame (slab-averaged areas), the
+    /// amount by which excluding them lowers the blood pool.
+    pub papillary_volume_curve_ml: Vec<f64>,
 }
 
 /// A synthetic subject ready to render.
@@ -252,6 +257,7 @@ impl Phantom {
                 let rv_scale = (v / edv).powf(0.25);
                 Scene {
                     lv,
+                    papillary_radius_mm: render::PAPILLARY_RADIUS * model.shape(edv).a,
                     lv_centre: (0.06 * fov_x, 0.03 * fov_y),
                     rv_axes: ((r_epi + 3.0) * rv_scale, 1.12 * r_epi * rv_scale),
                     rv_offset: (-0.38 * r_epi, -0.12 * r_epi),
@@ -392,9 +398,23 @@ impl Phantom {
         let disc = (0..self.spec.frames)
             .map(|f| areas.iter().map(|a| a[f]).sum::<f64>() * spacing / 1000.0)
             .collect();
+        let papillary_areas: Vec<Vec<f64>> = (0..self.spec.slices)
+            .map(|k| {
+                let z = self.slice_z_mm(k);
+                self.scenes
+                    .iter()
+                    .map(|s| s.mean_papillary_area_mm2(z - half, z + half))
+                    .collect()
+            })
+            .collect();
+        let papillary = (0..self.spec.frames)
+            .map(|f| papillary_areas.iter().map(|a| a[f]).sum::<f64>() * spacing / 1000.0)
+            .collect();
         Truth {
             slice_areas_mm2: areas,
             disc_volume_curve_ml: disc,
+            papillary_areas_mm2: papillary_areas,
+            papillary_volume_curve_ml: papillary,
             continuous_volume_curve_ml: self.scenes.iter().map(|s| s.lv.volume_ml).collect(),
         }
     }

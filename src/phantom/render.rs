@@ -4,7 +4,7 @@
 //! bright, lung nearly black. Each pixel is the mean over a regular grid of sub-samples
 //! in-plane and across the slice thickness (partial-volume rendering by supersampling).
 
-use super::anatomy::LvShape;
+use super::anatomy::{ellipsoid_slab_volume, LvShape};
 
 /// Signal of each tissue (arbitrary units; LV blood = 1).
 pub mod signal {
@@ -34,6 +34,9 @@ pub const SUBSAMPLES_THROUGH: usize = 5;
 pub struct Scene {
     /// LV shape at this instant.
     pub lv: LvShape,
+    /// Papillary-muscle radius at the widest section (mm), the same in every frame: the
+    /// muscles keep their size while the cavity around them shrinks in systole.
+    pub papillary_radius_mm: f64,
     /// LV long axis position in-plane `(x, y)` mm.
     pub lv_centre: (f64, f64),
     /// RV semi-axes `(x, y)` in mm at the widest section, at this instant.
@@ -119,22 +122,47 @@ impl Scene {
         tissue(signal::TISSUE)
     }
 
-    /// Two papillary muscles: cylinders of radius `0.14·a·s` at 55 % of the local cavity
-    /// radius, anterolateral and posteromedial, in the middle part of the long axis.
+    /// Two papillary muscles: discs of radius `r·s` (`r` = 0.14 of the end-diastolic
+    /// semi-axis `a`, `s` the local section scale) centred at 55 % of the local cavity radius,
+    /// anterolateral and posteromedial, in the middle part of the long axis. They lie wholly
+    /// inside the cavity and apart for any end-systolic `a` above 0.4 of the end-diastolic one.
     fn in_papillary(&self, dx: f64, dy: f64, z: f64, s: f64) -> bool {
         let lv = &self.lv;
         let length = lv.z_base - lv.z_apex();
         let rel = (z - lv.z_apex()) / length;
-        if !(0.2..=0.7).contains(&rel) {
+        if !(PAPILLARY_SPAN.0..=PAPILLARY_SPAN.1).contains(&rel) {
             return false;
         }
-        let r = 0.14 * lv.a * s;
+        let r = self.papillary_radius_mm * s;
         [(0.6f64, 0.55f64), (-0.9f64, 0.55f64)]
             .iter()
             .any(|&(ang, frac)| {
                 let (px, py) = (frac * lv.a * s * ang.cos(), frac * lv.b * s * ang.sin());
                 (dx - px).powi(2) + (dy - py).powi(2) <= r * r
             })
+    }
+}
+
+/// Papillary-muscle radius as a fraction of the end-diastolic cavity semi-axis `a`.
+pub const PAPILLARY_RADIUS: f64 = 0.14;
+/// Part of the long axis (0 apex, 1 base) where the papillary muscles are.
+const PAPILLARY_SPAN: (f64, f64) = (0.2, 0.7);
+
+impl Scene {
+    /// Papillary-muscle area (mm²) averaged over the slab `[z0, z1]`: inside their span, the
+    /// two discs of radius `r·s` take `2·r²/(a·b)` of the cavity's ellipse `π·a·b·s²` (the
+    /// discs lie wholly inside the cavity and apart), so the slab integral is that fraction
+    /// of the cavity's.
+    pub fn mean_papillary_area_mm2(&self, z0: f64, z1: f64) -> f64 {
+        let lv = &self.lv;
+        let length = lv.z_base - lv.z_apex();
+        let lo = z0.max(lv.z_apex() + PAPILLARY_SPAN.0 * length);
+        let hi = z1.min(lv.z_apex() + PAPILLARY_SPAN.1 * length);
+        if hi <= lo {
+            return 0.0;
+        }
+        let fraction = 2.0 * self.papillary_radius_mm.powi(2) / (lv.a * lv.b);
+        fraction * ellipsoid_slab_volume(lv.a, lv.b, lv.c, lv.zc, lv.z_base, lo, hi) / (z1 - z0)
     }
 }
 

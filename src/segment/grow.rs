@@ -50,6 +50,36 @@ pub enum GrowFailure {
     },
 }
 
+/// How papillary muscles and trabeculae are counted (both are accepted practice; every
+/// output says which was used).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum BloodPoolConvention {
+    /// Counted in the blood pool: every hole enclosed by the region is filled.
+    PapillaryIncluded,
+    /// Left out: enclosed holes stay out of the region, except specks of at most
+    /// [`NOISE_HOLE_PX`] pixels, which are noise rather than muscle.
+    PapillaryExcluded,
+}
+
+impl BloodPoolConvention {
+    /// Text written in every output.
+    pub fn describe(self) -> &'static str {
+        match self {
+            BloodPoolConvention::PapillaryIncluded => {
+                "papillary muscles and trabeculae included in the blood pool"
+            }
+            BloodPoolConvention::PapillaryExcluded => {
+                "papillary muscles and trabeculae excluded from the blood pool"
+            }
+        }
+    }
+}
+
+/// Enclosed holes up to this size (px) are filled under either convention: a papillary
+/// muscle seen in a slice spans tens of pixels at cine resolution, a noise speck one or two.
+pub const NOISE_HOLE_PX: usize = 2;
+
 /// Parameters of growth in one image.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct GrowParams {
@@ -63,6 +93,8 @@ pub struct GrowParams {
     pub refinements: usize,
     /// Regions smaller than this (px) keep the threshold they were given.
     pub min_refine_px: usize,
+    /// Blood-pool convention (which enclosed holes are filled).
+    pub convention: BloodPoolConvention,
 }
 
 impl Default for GrowParams {
@@ -73,6 +105,7 @@ impl Default for GrowParams {
             max_area_fraction: 0.25,
             refinements: 4,
             min_refine_px: 25,
+            convention: BloodPoolConvention::PapillaryIncluded,
         }
     }
 }
@@ -146,16 +179,35 @@ pub fn component(image: ArrayView2<f32>, threshold: f32, start: (usize, usize)) 
 
 /// Fills holes: background pixels (8-connected) that cannot reach the image border.
 pub fn fill_holes(mask: ArrayView2<bool>) -> Array2<bool> {
+    fill_holes_up_to(mask, usize::MAX)
+}
+
+/// Fills the holes (8-connected background components not reaching the border) of at most
+/// `max_px` pixels.
+pub fn fill_holes_up_to(mask: ArrayView2<bool>, max_px: usize) -> Array2<bool> {
     let (rows, cols) = mask.dim();
     let outside = mask.mapv(|b| !b);
     let labels = label(outside.view(), Connectivity::Eight);
     let mut touches = std::collections::BTreeSet::new();
+    let mut sizes = std::collections::BTreeMap::<u32, usize>::new();
     for ((r, c), l) in labels.indexed_iter() {
         if r == 0 || c == 0 || r + 1 == rows || c + 1 == cols {
             touches.insert(*l);
         }
+        *sizes.entry(*l).or_default() += 1;
     }
-    Array2::from_shape_fn((rows, cols), |p| mask[p] || !touches.contains(&labels[p]))
+    Array2::from_shape_fn((rows, cols), |p| {
+        let l = labels[p];
+        mask[p] || (!touches.contains(&l) && sizes[&l] <= max_px)
+    })
+}
+
+/// The region of a thresholded component under a blood-pool convention.
+fn complete(component: Array2<bool>, convention: BloodPoolConvention) -> Array2<bool> {
+    match convention {
+        BloodPoolConvention::PapillaryIncluded => fill_holes(component.view()),
+        BloodPoolConvention::PapillaryExcluded => fill_holes_up_to(component.view(), NOISE_HOLE_PX),
+    }
 }
 
 /// The pixel of `mask` farthest from its outside (Euclidean), among those where `ok` holds;
@@ -269,7 +321,7 @@ pub fn grow(
             });
         }
         let start = brightest_near(image, seed);
-        let grown = fill_holes(component(image, threshold, start).view());
+        let grown = complete(component(image, threshold, start), p.convention);
         let area = grown.iter().filter(|&&b| b).count();
         if area == 0 {
             return Err(GrowFailure::Dark {

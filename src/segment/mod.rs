@@ -17,29 +17,10 @@ use std::collections::BTreeMap;
 
 use ndarray::{Array4, ArrayView2, ArrayView4, Axis};
 use rayon::prelude::*;
-use serde::Serialize;
 
+pub use grow::BloodPoolConvention;
 use grow::{deepest_point, GrowFailure, GrowParams, Region};
 pub use seeds::Seed;
-
-/// How papillary muscles and trabeculae are counted.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum BloodPoolConvention {
-    /// Counted in the blood pool (enclosed holes filled).
-    PapillaryIncluded,
-}
-
-impl BloodPoolConvention {
-    /// Text written in every output.
-    pub fn describe(self) -> &'static str {
-        match self {
-            BloodPoolConvention::PapillaryIncluded => {
-                "papillary muscles and trabeculae included in the blood pool"
-            }
-        }
-    }
-}
 
 /// Parameters of the whole segmentation.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -55,8 +36,13 @@ pub struct SegmentParams {
     /// is taken as lost (mid-ventricular areas change by about 10 % per frame at 20
     /// frames per cycle, common practice; 2× leaves ample room).
     pub frame_change_limit: f64,
-    /// Blood-pool convention.
-    pub convention: BloodPoolConvention,
+}
+
+impl SegmentParams {
+    /// Blood-pool convention (set in [`GrowParams::convention`]).
+    pub fn convention(&self) -> BloodPoolConvention {
+        self.grow.convention
+    }
 }
 
 impl Default for SegmentParams {
@@ -66,7 +52,6 @@ impl Default for SegmentParams {
             leak_area_ratio: 2.0,
             leak_margin_px: 30,
             frame_change_limit: 2.0,
-            convention: BloodPoolConvention::PapillaryIncluded,
         }
     }
 }
@@ -276,7 +261,7 @@ pub fn segment(
     Ok(Segmentation {
         masks,
         notes,
-        convention: params.convention,
+        convention: params.convention(),
     })
 }
 
