@@ -35,6 +35,7 @@ pub mod report;
 pub mod results;
 pub mod rng;
 pub mod sampling;
+pub mod seed_jitter;
 pub mod segment;
 pub mod simulate;
 pub mod tolerances;

@@ -260,6 +260,7 @@ pub fn result_row(
         messages,
         slice_areas_mm2: areas,
         truth,
+        seed_jitter: None,
     }
 }
 

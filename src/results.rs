@@ -8,6 +8,7 @@ use serde::{Deserialize, Serialize};
 use crate::caution::CAUTION;
 use crate::io::{write_atomic, IoError};
 pub use crate::measure::Numbers;
+use crate::seed_jitter::SeedJitter;
 
 /// Whether a run produced numbers.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -60,6 +61,10 @@ pub struct RunRow {
     /// Analytic truth, for synthetic subjects.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub truth: Option<Truth>,
+    /// Spread of the numbers when the seeds are moved (the measurement's repeatability
+    /// floor), when asked for.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub seed_jitter: Option<SeedJitter>,
 }
 
 /// Provenance of one input.
@@ -151,6 +156,9 @@ impl ResultsFile {
             "truth_esv_ml",
             "truth_sv_ml",
             "truth_ef_pct",
+            "edv_jitter_max_change_ml",
+            "esv_jitter_max_change_ml",
+            "ef_jitter_max_change_pp",
             "messages",
         ];
         w.write_record(header).expect("in-memory write");
@@ -158,6 +166,7 @@ impl ResultsFile {
         for r in &self.runs {
             let n = r.numbers.as_ref();
             let t = r.truth.as_ref().map(|t| &t.numbers);
+            let j = r.seed_jitter.as_ref();
             let rec = vec![
                 r.subject.clone(),
                 r.method.clone(),
@@ -188,6 +197,9 @@ impl ResultsFile {
                 opt(t.map(|t| t.esv_ml)),
                 opt(t.map(|t| t.sv_ml)),
                 opt(t.map(|t| t.ef_pct)),
+                opt(j.and_then(|j| j.edv_ml.as_ref()).map(|s| s.max_change)),
+                opt(j.and_then(|j| j.esv_ml.as_ref()).map(|s| s.max_change)),
+                opt(j.and_then(|j| j.ef_pct.as_ref()).map(|s| s.max_change)),
                 r.messages.join(" | "),
             ];
             w.write_record(rec).expect("in-memory write");

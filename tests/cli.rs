@@ -300,6 +300,8 @@ fn simulate_then_measure_matches_truth_and_bad_seeds_are_named() {
         "--out",
         measured.to_str().unwrap(),
         "--json",
+        "--seed-jitter-px",
+        "2",
         "--quiet",
     ]);
     assert!(o.status.success(), "{}", text(&o));
@@ -318,6 +320,13 @@ fn simulate_then_measure_matches_truth_and_bad_seeds_are_named() {
         "EF {ef} vs truth {tef}"
     );
     assert_eq!(run["slice_areas_mm2"].as_array().unwrap().len(), 11);
+    // Seeds moved by 2 px in 8 directions: every run measures, EF moves by under 1 pp (the
+    // issue's floor for 3 px on the phantom; 2 px here on a coarser 96 × 96 matrix).
+    let j = &run["seed_jitter"];
+    assert_eq!(j["runs_ok"], 8, "{j}");
+    assert!(j["ef_pct"]["max_change"].as_f64().unwrap() < 1.0, "{j}");
+    let csv = std::fs::read_to_string(measured.join("measurements.csv")).unwrap();
+    assert!(csv.contains("ef_jitter_max_change_pp"), "{csv}");
     assert!(measured.join("measurements.csv").exists());
     let stdout: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(stdout["runs"][0]["ef_pct"], run["ef_pct"]);

@@ -10,6 +10,7 @@ use cinegauge::io;
 use cinegauge::pipeline;
 use cinegauge::recon::ReconPlan;
 use cinegauge::results::{InputHash, ResultsFile};
+use cinegauge::seed_jitter;
 use cinegauge::segment::{seeds, BloodPoolConvention, SegmentParams};
 
 /// Arguments of `measure`.
@@ -58,6 +59,11 @@ pub struct MeasureArgs {
     /// or left out (`excluded`); both are accepted practice and every output says which.
     #[arg(long, value_name = "RULE", default_value = "in-pool", value_parser = ["in-pool", "excluded"])]
     pub papillary_muscles: String,
+    /// Also segment with every seed moved by N pixels in 8 directions and report the spread
+    /// of EDV, ESV and EF (`seed_jitter` in measurements.json): the measurement's own
+    /// repeatability floor. 0 skips it.
+    #[arg(long, value_name = "N", default_value_t = 0)]
+    pub seed_jitter_px: usize,
 }
 
 pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
@@ -109,7 +115,18 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
     };
     io::ensure_dir(&a.out).context("preparing the output folder")?;
     write_pictures(&a.out, &series, &seg, &vol, seed_list[0].slice)?;
-    let row = pipeline::result_row(&a.subject, &plan, Ok((seg, vol)), &params, None);
+    let jitter = (a.seed_jitter_px > 0).then(|| {
+        seed_jitter::seed_jitter(
+            series.images.view(),
+            &series.geometry,
+            &seed_list,
+            &params,
+            a.seed_jitter_px,
+            &vol.numbers,
+        )
+    });
+    let mut row = pipeline::result_row(&a.subject, &plan, Ok((seg, vol)), &params, None);
+    row.seed_jitter = jitter;
     let inputs = vec![
         InputHash {
             label: "images".into(),
@@ -125,6 +142,28 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
         .context("writing measurements")?;
     if a.json {
         println!("{}", serde_json::to_string_pretty(&file)?);
+    }
+    if let Some(j) = &file.runs[0].seed_jitter {
+        let change = |s: &Option<seed_jitter::Spread>| {
+            s.as_ref()
+                .map(|s| format!("{:.2}", s.max_change))
+                .unwrap_or_else(|| "–".into())
+        };
+        say(
+            quiet,
+            &format!(
+                "seeds moved by {} px ({} of {} runs measured): largest change EDV {} ml, ESV {} ml, EF {} pp",
+                j.jitter_px,
+                j.runs_ok,
+                j.offsets_px.len(),
+                change(&j.edv_ml),
+                change(&j.esv_ml),
+                change(&j.ef_pct)
+            ),
+        );
+        for f in &j.failed {
+            say(quiet, &format!("warning: seed jitter: {f}"));
+        }
     }
     if let Some(n) = &file.runs[0].numbers {
         say(
