@@ -104,6 +104,7 @@ pub fn subjects(rng_seed: u64) -> Vec<DemoSubject> {
                 coils: a.coils,
                 snr: s.snr,
                 rng_seed: rng_seed.wrapping_mul(1000).wrapping_add(k as u64 + 1),
+                thin_septum: None,
             },
         })
         .collect()

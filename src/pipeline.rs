@@ -239,14 +239,15 @@ pub fn result_row(
     params: &SegmentParams,
     truth: Option<Truth>,
 ) -> RunRow {
-    let (status, numbers, areas, messages) = match outcome {
+    let (status, numbers, areas, messages, leak_guard) = match outcome {
         Ok((seg, vol)) => (
             RunStatus::Ok,
             Some(vol.numbers),
             Some(vol.slice_areas_mm2),
             seg.notes,
+            seg.guard_events,
         ),
-        Err(e) => (RunStatus::Failed, None, None, vec![e]),
+        Err(e) => (RunStatus::Failed, None, None, vec![e], Vec::new()),
     };
     RunRow {
         subject: subject.into(),
@@ -261,6 +262,7 @@ pub fn result_row(
         slice_areas_mm2: areas,
         truth,
         seed_jitter: None,
+        leak_guard,
     }
 }
 

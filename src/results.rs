@@ -9,6 +9,7 @@ use crate::caution::CAUTION;
 use crate::io::{write_atomic, IoError};
 pub use crate::measure::Numbers;
 use crate::seed_jitter::SeedJitter;
+use crate::segment::GuardEvent;
 
 /// Whether a run produced numbers.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -65,6 +66,9 @@ pub struct RunRow {
     /// floor), when asked for.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub seed_jitter: Option<SeedJitter>,
+    /// Every slice and frame where the leak guard cut a region (empty: it never acted).
+    #[serde(default)]
+    pub leak_guard: Vec<GuardEvent>,
 }
 
 /// Provenance of one input.
@@ -159,6 +163,7 @@ impl ResultsFile {
             "edv_jitter_max_change_ml",
             "esv_jitter_max_change_ml",
             "ef_jitter_max_change_pp",
+            "leak_guard_slice_frame",
             "messages",
         ];
         w.write_record(header).expect("in-memory write");
@@ -200,6 +205,13 @@ impl ResultsFile {
                 opt(j.and_then(|j| j.edv_ml.as_ref()).map(|s| s.max_change)),
                 opt(j.and_then(|j| j.esv_ml.as_ref()).map(|s| s.max_change)),
                 opt(j.and_then(|j| j.ef_pct.as_ref()).map(|s| s.max_change)),
+                serde_json::to_string(
+                    &r.leak_guard
+                        .iter()
+                        .map(|e| [e.slice, e.frame])
+                        .collect::<Vec<_>>(),
+                )
+                .expect("numbers"),
                 r.messages.join(" | "),
             ];
             w.write_record(rec).expect("in-memory write");

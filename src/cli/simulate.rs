@@ -79,6 +79,7 @@ pub fn run(a: SimulateArgs, quiet: bool) -> anyhow::Result<()> {
         coils: a.coils,
         snr: a.snr,
         rng_seed: a.rng_seed,
+        thin_septum: None,
     };
     let ph = Phantom::new(spec).context("checking the phantom parameters")?;
     let prog = Progress::new("simulate", a.slices as u64, quiet);

@@ -64,6 +64,20 @@ pub struct PhantomSpec {
     pub snr: f64,
     /// Seed of every random choice (noise).
     pub rng_seed: u64,
+    /// A septum thinned at one frame (a test of the segmentation's leak guard).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub thin_septum: Option<ThinSeptum>,
+}
+
+/// The interventricular septum thinned at one frame: the right-ventricular blood reaches into
+/// the LV wall until `septum_mm` of wall are left between the two cavities (the LV cavity and
+/// its truth are unchanged).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct ThinSeptum {
+    /// Frame (zero-based).
+    pub frame: usize,
+    /// Septal wall left, in mm.
+    pub septum_mm: f64,
 }
 
 impl Default for PhantomSpec {
@@ -82,6 +96,7 @@ impl Default for PhantomSpec {
             coils: 8,
             snr: 25.0,
             rng_seed: 1,
+            thin_septum: None,
         }
     }
 }
@@ -181,6 +196,23 @@ impl PhantomSpec {
             "a positive number",
             self.snr,
         )?;
+        if let Some(t) = self.thin_septum {
+            check(
+                t.frame < self.frames,
+                "thin_septum.frame",
+                &format!("a frame below {}", self.frames),
+                t.frame,
+            )?;
+            check(
+                t.septum_mm > 0.0 && t.septum_mm < anatomy::WALL_ED_MM,
+                "thin_septum.septum_mm",
+                &format!(
+                    "more than 0 and less than the wall ({} mm)",
+                    anatomy::WALL_ED_MM
+                ),
+                t.septum_mm,
+            )?;
+        }
         let fov_y = self.rows as f64 * self.pixel_mm;
         let fov_x = self.cols as f64 * self.pixel_mm;
         check(
@@ -258,6 +290,10 @@ impl Phantom {
                 Scene {
                     lv,
                     papillary_radius_mm: render::PAPILLARY_RADIUS * model.shape(edv).a,
+                    thin_septum_mm: spec
+                        .thin_septum
+                        .filter(|t| t.frame == f)
+                        .map(|t| t.septum_mm),
                     lv_centre: (0.06 * fov_x, 0.03 * fov_y),
                     rv_axes: ((r_epi + 3.0) * rv_scale, 1.12 * r_epi * rv_scale),
                     rv_offset: (-0.38 * r_epi, -0.12 * r_epi),

@@ -37,6 +37,9 @@ pub struct Scene {
     /// Papillary-muscle radius at the widest section (mm), the same in every frame: the
     /// muscles keep their size while the cavity around them shrinks in systole.
     pub papillary_radius_mm: f64,
+    /// Septal wall left (mm) where the septum is thinned at this instant: within 35° of the
+    /// direction of the RV, the wall beyond this depth from the cavity is RV blood.
+    pub thin_septum_mm: Option<f64>,
     /// LV long axis position in-plane `(x, y)` mm.
     pub lv_centre: (f64, f64),
     /// RV semi-axes `(x, y)` in mm at the widest section, at this instant.
@@ -89,17 +92,24 @@ impl Scene {
             }
         }
         let epi = lv.epi_scale(z);
+        // The RV follows the epicardial profile in z, from 12 mm above the apex to the base.
+        let rv = (z > lv.z_apex() + 12.0 && z <= lv.z_base).then(|| {
+            let s = epi.unwrap_or(0.0);
+            let (rx, ry) = (self.rv_axes.0 * s, self.rv_axes.1 * s);
+            (rx, ry, dx - self.rv_offset.0, dy - self.rv_offset.1)
+        });
         if let Some(s) = epi {
             let (ea, eb) = ((lv.a + lv.wall) * s, (lv.b + lv.wall) * s);
             if inside_ellipse(dx, dy, ea, eb) {
+                if let (Some(t), Some(_)) = (self.thin_septum_mm, rv) {
+                    if self.beyond_thin_septum(dx, dy, s, t) {
+                        return tissue(signal::RV_BLOOD);
+                    }
+                }
                 return tissue(signal::MYOCARDIUM);
             }
         }
-        // The RV follows the epicardial profile in z, from 12 mm above the apex to the base.
-        if z > lv.z_apex() + 12.0 && z <= lv.z_base {
-            let s = epi.unwrap_or(0.0);
-            let (rx, ry) = (self.rv_axes.0 * s, self.rv_axes.1 * s);
-            let (rdx, rdy) = (dx - self.rv_offset.0, dy - self.rv_offset.1);
+        if let Some((rx, ry, rdx, rdy)) = rv {
             if rx > 0.0 && inside_ellipse(rdx, rdy, rx, ry) {
                 return tissue(signal::RV_BLOOD);
             }
@@ -120,6 +130,20 @@ impl Scene {
             }
         }
         tissue(signal::TISSUE)
+    }
+
+    /// Whether a wall point `(dx, dy)` from the LV centre lies in the septal sector (within
+    /// 35° of the RV direction) deeper than `septum_mm` from the cavity (depth measured along
+    /// the cavity's radial parameter, `(ρ − 1)·a·s`).
+    fn beyond_thin_septum(&self, dx: f64, dy: f64, s: f64, septum_mm: f64) -> bool {
+        let (ux, uy) = self.rv_offset;
+        let (nd, nu) = (dx.hypot(dy), ux.hypot(uy));
+        if nd == 0.0 || nu == 0.0 || (dx * ux + dy * uy) / (nd * nu) < 35f64.to_radians().cos() {
+            return false;
+        }
+        let lv = &self.lv;
+        let rho = ((dx / (lv.a * s)).powi(2) + (dy / (lv.b * s)).powi(2)).sqrt();
+        (rho - 1.0) * lv.a * s > septum_mm
     }
 
     /// Two papillary muscles: discs of radius `r·s` (`r` = 0.14 of the end-diastolic

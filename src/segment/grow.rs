@@ -140,7 +140,8 @@ pub fn otsu(values: &[f32]) -> f32 {
 /// Labels of the 4- or 8-connected components of the true pixels of `mask` (0 = false).
 ///
 /// imageproc 0.27 panics on a 1×1 image with a foreground pixel; that case is labelled here.
-fn label(mask: ArrayView2<bool>, conn: Connectivity) -> Array2<u32> {
+/// Connected-component labels of a mask (0 for background).
+pub fn label(mask: ArrayView2<bool>, conn: Connectivity) -> Array2<u32> {
     if mask.len() == 1 {
         return mask.mapv(u32::from);
     }

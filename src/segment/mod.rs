@@ -4,19 +4,23 @@
 //! then carried frame by frame through the cycle in that slice (each frame seeded at the
 //! deepest interior point of the previous frame's region that is still bright), and from
 //! there slice by slice towards base and apex in every frame. Propagation into a slice
-//! stops when no pixel of the neighbouring region is bright there (the cavity has ended)
-//! or when the region would grow to more than [`SegmentParams::leak_area_ratio`] times the
-//! neighbouring slice (it has left the LV). Further seeds override propagation at their
-//! own slice and frame. Every reconstruction of a subject is segmented with the same seeds
-//! and the same parameters.
+//! stops when no pixel of the neighbouring region is bright there (the cavity has ended).
+//! Every propagated region passes the leak guard ([`guard`]) against the region it came from:
+//! a region that grew too large, reached far beyond its neighbour or lost its compactness is
+//! cut back, and each cut is recorded ([`GuardEvent`]); a final pass walks every slice's
+//! frames the same way. Further seeds override propagation at their own slice and frame.
+//! Every reconstruction of a subject is segmented with the same seeds and the same
+//! parameters.
 
 pub mod grow;
+pub mod guard;
 pub mod seeds;
 
 use std::collections::BTreeMap;
 
 use ndarray::{Array4, ArrayView2, ArrayView4, Axis};
 use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
 
 pub use grow::BloodPoolConvention;
 use grow::{deepest_point, GrowFailure, GrowParams, Region};
@@ -36,6 +40,10 @@ pub struct SegmentParams {
     /// is taken as lost (mid-ventricular areas change by about 10 % per frame at 20
     /// frames per cycle, common practice; 2× leaves ample room).
     pub frame_change_limit: f64,
+    /// Largest opening radius (px) the leak guard tries when cutting a leak.
+    pub leak_max_radius_px: usize,
+    /// Whether the leak guard runs at all (off only to see what it prevents).
+    pub leak_guard: bool,
 }
 
 impl SegmentParams {
@@ -52,6 +60,8 @@ impl Default for SegmentParams {
             leak_area_ratio: 2.0,
             leak_margin_px: 30,
             frame_change_limit: 2.0,
+            leak_max_radius_px: 6,
+            leak_guard: true,
         }
     }
 }
@@ -129,16 +139,94 @@ pub enum SegmentError {
 pub struct Segmentation {
     /// `[slice, frame, row, col]`, true inside the LV blood pool.
     pub masks: Array4<bool>,
-    /// Places where propagation stopped for a reason other than the cavity ending.
+    /// Places where propagation stopped for a reason other than the cavity ending, and
+    /// where the leak guard acted.
     pub notes: Vec<String>,
+    /// Every slice and frame where the leak guard cut a region.
+    pub guard_events: Vec<GuardEvent>,
     /// Convention used.
     pub convention: BloodPoolConvention,
 }
 
+/// Where the leak guard cut a region, why, and by how much.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct GuardEvent {
+    /// Slice.
+    pub slice: usize,
+    /// Frame.
+    pub frame: usize,
+    /// What the detection saw.
+    pub reason: String,
+    /// How the leak was cut.
+    pub cut_by: guard::CutBy,
+    /// Area before the cut (px).
+    pub area_before_px: usize,
+    /// Area after the cut (px).
+    pub area_after_px: usize,
+}
+
+impl GuardEvent {
+    fn note(&self) -> String {
+        format!(
+            "leak guard: slice {}, frame {}: {}; cut by {} ({} → {} px)",
+            self.slice,
+            self.frame,
+            self.reason,
+            self.cut_by,
+            self.area_before_px,
+            self.area_after_px
+        )
+    }
+}
+
+/// Outcome of the leak guard on one propagated region.
+enum Guarded {
+    /// No leak.
+    Clean(Region),
+    /// A leak, cut.
+    Cut(Region, GuardEvent),
+    /// A leak that opening could not cut: why.
+    Uncut(String),
+}
+
+/// Checks a propagated region against its neighbour and cuts a leak.
+fn guard(
+    region: Region,
+    neighbour: &Region,
+    area_ratio: f64,
+    margin_px: usize,
+    params: &SegmentParams,
+    at: (usize, usize),
+) -> Guarded {
+    let limits = guard::LeakLimits {
+        area_ratio,
+        margin_px,
+        max_radius_px: params.leak_max_radius_px,
+    };
+    let Some(reason) = guard::leak(&region, neighbour, &limits).filter(|_| params.leak_guard)
+    else {
+        return Guarded::Clean(region);
+    };
+    match guard::cut(&region, neighbour, &limits) {
+        Some(c) => {
+            let event = GuardEvent {
+                slice: at.0,
+                frame: at.1,
+                reason,
+                cut_by: c.how,
+                area_before_px: c.area_before_px,
+                area_after_px: c.region.area_px(),
+            };
+            Guarded::Cut(c.region, event)
+        }
+        None => Guarded::Uncut(reason),
+    }
+}
+
 type Explicit = BTreeMap<(usize, usize), (usize, Seed)>;
 
-/// Regions of every slice in one frame, and the notes made while walking them.
-type FrameColumn = (Vec<Option<Region>>, Vec<String>);
+/// Regions of every slice in one frame, and the notes and guard events made on the way.
+type FrameColumn = (Vec<Option<Region>>, Vec<String>, Vec<GuardEvent>);
 
 /// Segments the LV blood pool of a `[slice, frame, row, col]` stack from `seeds` (the first
 /// is the primary, mid-ventricular seed).
@@ -174,12 +262,13 @@ pub fn segment(
     let image = |s: usize, f: usize| stack.index_axis(Axis(0), s).index_axis_move(Axis(0), f);
     let s0 = primary.slice;
     let mut chain: Vec<Option<Region>> = vec![None; nf];
+    let mut chain_events = Vec::new();
     chain[primary.frame] = Some(grow_explicit(stack, 1, primary, params)?);
     let order: Vec<(usize, usize)> = ((primary.frame + 1)..nf)
         .map(|f| (f, f - 1))
         .chain((0..primary.frame).rev().map(|f| (f, f + 1)))
         .collect();
-    for (f, from) in order {
+    for &(f, from) in &order {
         let region = if let Some((index, seed)) = explicit.get(&(s0, f)) {
             grow_explicit(stack, *index, *seed, params)?
         } else {
@@ -191,6 +280,29 @@ pub fn segment(
                     why,
                 }
             })?;
+            let region = match guard(
+                region,
+                parent,
+                params.frame_change_limit,
+                0,
+                params,
+                (s0, f),
+            ) {
+                Guarded::Clean(r) => r,
+                Guarded::Cut(r, e) => {
+                    chain_events.push(e);
+                    r
+                }
+                Guarded::Uncut(why) => {
+                    return Err(SegmentError::Lost {
+                        slice: s0,
+                        frame: f,
+                        why: format!(
+                            "{why}, against frame {from}; the leak guard could not cut it"
+                        ),
+                    })
+                }
+            };
             let ratio = region.area_px() as f64 / parent.area_px().max(1) as f64;
             if !(1.0 / params.frame_change_limit..=params.frame_change_limit).contains(&ratio) {
                 return Err(SegmentError::Lost {
@@ -212,6 +324,7 @@ pub fn segment(
         .map(|f| {
             let mut col: Vec<Option<Region>> = vec![None; ns];
             let mut notes = Vec::new();
+            let mut events = Vec::new();
             col[s0] = chain[f].clone();
             let up: Vec<usize> = ((s0 + 1)..ns).collect();
             let down: Vec<usize> = (0..s0).rev().collect();
@@ -222,15 +335,21 @@ pub fn segment(
                         Some(grow_explicit(stack, *index, *seed, params)?)
                     } else if let Some(p) = &parent {
                         match propagate(image(s, f), p, &params.grow) {
-                            Ok(r) if leaked(&r, p, params) => {
-                                notes.push(format!(
-                                    "slice {s}, frame {f}: region {:.1}× the neighbouring slice's \
-                                     area, taken as outside the LV; not counted",
-                                    r.area_px() as f64 / p.area_px().max(1) as f64
-                                ));
-                                None
-                            }
-                            Ok(r) => Some(r),
+                            Ok(r) => match guard(r, p, params.leak_area_ratio, params.leak_margin_px, params, (s, f)) {
+                                Guarded::Clean(r) => Some(r),
+                                Guarded::Cut(r, e) => {
+                                    events.push(e);
+                                    Some(r)
+                                }
+                                Guarded::Uncut(why) => {
+                                    notes.push(format!(
+                                        "slice {s}, frame {f}: {why} against the neighbouring slice \
+                                         and the leak guard could not cut it; taken as outside the \
+                                         LV, not counted"
+                                    ));
+                                    None
+                                }
+                            },
                             Err(_) => None,
                         }
                     } else {
@@ -240,16 +359,66 @@ pub fn segment(
                     parent = next;
                 }
             }
-            Ok((col, notes))
+            Ok((col, notes, events))
         })
         .collect();
 
-    let mut masks = Array4::<bool>::from_elem((ns, nf, nr, nc), false);
     let mut notes = Vec::new();
+    let mut guard_events = chain_events;
+    // [slice][frame] regions, for the temporal pass.
+    let mut by_slice: Vec<Vec<Option<Region>>> = vec![vec![None; nf]; ns];
     for (f, res) in per_frame.into_iter().enumerate() {
-        let (col, n) = res?;
+        let (col, n, e) = res?;
         notes.extend(n);
+        guard_events.extend(e);
         for (s, region) in col.into_iter().enumerate() {
+            by_slice[s][f] = region;
+        }
+    }
+    // Every other slice walks its frames the way the seed slice did, so a leak that slice
+    // propagation let through (the neighbouring slice leaked the same way) is still caught
+    // against the same slice one frame earlier.
+    let temporal: Vec<(Vec<String>, Vec<GuardEvent>)> = by_slice
+        .par_iter_mut()
+        .enumerate()
+        .filter(|(s, _)| *s != s0)
+        .map(|(s, frames)| {
+            let (mut notes, mut events) = (Vec::new(), Vec::new());
+            for &(f, from) in &order {
+                if explicit.contains_key(&(s, f)) {
+                    continue;
+                }
+                let (Some(region), Some(previous)) = (frames[f].clone(), frames[from].clone())
+                else {
+                    continue;
+                };
+                // Basal and apical slices gain and lose area fast as the base plane moves
+                // through them: judged by reach and shape only, against a sizeable region.
+                if previous.area_px() < guard::FAR_MIN_PX {
+                    continue;
+                }
+                match guard(region, &previous, f64::INFINITY, 0, params, (s, f)) {
+                    Guarded::Clean(_) => {}
+                    Guarded::Cut(r, e) => {
+                        events.push(e);
+                        frames[f] = Some(r);
+                    }
+                    Guarded::Uncut(why) => notes.push(format!(
+                        "slice {s}, frame {f}: {why} against frame {from}; the leak guard could \
+                         not cut it and the region is kept: check this slice"
+                    )),
+                }
+            }
+            (notes, events)
+        })
+        .collect();
+    for (n, e) in temporal {
+        notes.extend(n);
+        guard_events.extend(e);
+    }
+    let mut masks = Array4::<bool>::from_elem((ns, nf, nr, nc), false);
+    for (s, frames) in by_slice.into_iter().enumerate() {
+        for (f, region) in frames.into_iter().enumerate() {
             if let Some(r) = region {
                 masks
                     .index_axis_mut(Axis(0), s)
@@ -258,15 +427,14 @@ pub fn segment(
             }
         }
     }
+    guard_events.sort_by_key(|e| (e.frame, e.slice));
+    notes.extend(guard_events.iter().map(GuardEvent::note));
     Ok(Segmentation {
         masks,
         notes,
+        guard_events,
         convention: params.convention(),
     })
-}
-
-fn leaked(r: &Region, parent: &Region, p: &SegmentParams) -> bool {
-    r.area_px() as f64 > p.leak_area_ratio * parent.area_px() as f64 + p.leak_margin_px as f64
 }
 
 fn grow_explicit(
