@@ -159,3 +159,71 @@ fn a_leak_through_a_thin_septum_is_cut_at_its_frame() {
         );
     }
 }
+
+/// The first pixel of `slice` at frame 0 whose 5 × 5 neighbourhood is all `signal` and that
+/// `keep` accepts.
+fn pixel_inside(
+    ph: &Phantom,
+    slice: usize,
+    signal: f32,
+    keep: impl Fn(usize, usize) -> bool,
+) -> (usize, usize) {
+    let spec = ph.spec();
+    (2..spec.rows - 2)
+        .flat_map(|r| (2..spec.cols - 2).map(move |c| (r, c)))
+        .find(|&(r, c)| {
+            keep(r, c)
+                && (r - 2..=r + 2).all(|rr| {
+                    (c - 2..=c + 2).all(|cc| ph.tissue_signal(0, slice, rr, cc) == signal)
+                })
+        })
+        .expect("such a pixel exists in the phantom")
+}
+
+/// Seeds in the wrong place are refused, each naming the seed and why: in the LV wall (too
+/// dark), in the right ventricle (a crescent, not round), in subcutaneous fat (it runs around
+/// the body) and in the air outside the body (too dark). The good seed comes first, in the
+/// same slice and frame: every seed is checked, not only the one used there.
+#[test]
+fn bad_seeds_are_refused_saying_why_and_which() {
+    use cinegauge::phantom::render::signal;
+    use cinegauge::segment::{segment, Seed, SegmentError};
+    let (ph, stack) = reference(0);
+    let (slice, r0, c0) = ph.mid_ventricular_pixel();
+    let near_lv = |r: usize, c: usize| r.abs_diff(r0) + c.abs_diff(c0) < 30;
+    let wall = pixel_inside(&ph, slice, signal::MYOCARDIUM, near_lv);
+    let rv = pixel_inside(&ph, slice, signal::RV_BLOOD, |_, _| true);
+    let fat = pixel_inside(&ph, slice, signal::FAT, |_, _| true);
+    let cases = [
+        (wall, "not inside a bright blood pool"),
+        (rv, "not round"),
+        (fat, "probably outside the heart"),
+        ((1, 1), "not inside a bright blood pool"),
+    ];
+    for ((row, col), why) in cases {
+        let good = pipeline::phantom_seed(&ph);
+        let bad = Seed {
+            slice,
+            frame: 0,
+            row,
+            col,
+        };
+        let e = segment(stack.view(), &[good, bad], &SegmentParams::default())
+            .err()
+            .unwrap_or_else(|| panic!("seed at ({row}, {col}) accepted"));
+        let text = e.to_string();
+        assert!(
+            text.contains("seed #2") && text.contains(why),
+            "({row}, {col}): {text}"
+        );
+        assert!(
+            matches!(
+                e,
+                SegmentError::SeedDark { index: 2, .. }
+                    | SegmentError::SeedNotRound { index: 2, .. }
+                    | SegmentError::SeedRunaway { index: 2, .. }
+            ),
+            "{e:?}"
+        );
+    }
+}

@@ -349,6 +349,15 @@ impl Phantom {
         )
     }
 
+    /// Noise-free tissue signal at the centre of pixel `(row, col)` of `slice` at `frame`
+    /// (the values of [`render::signal`]): which structure lies there.
+    pub fn tissue_signal(&self, frame: usize, slice: usize, row: usize, col: usize) -> f32 {
+        let (x, y) = self.pixel_xy_mm(row as f64, col as f64);
+        self.scenes[frame]
+            .sample(x, y, self.slice_z_mm(slice))
+            .signal
+    }
+
     /// LV shape at `frame`.
     pub fn lv_shape(&self, frame: usize) -> &LvShape {
         &self.scenes[frame].lv

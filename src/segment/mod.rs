@@ -119,6 +119,22 @@ pub enum SegmentError {
         /// Percentage of the image covered.
         pct: f64,
     },
+    /// A seed's region is not round like an LV blood pool.
+    #[error(
+        "seed #{index} ({seed}) grows into a region that is not round (solidity {solidity:.2}; an LV \
+         blood pool in short axis has at least {min:.2}): it is probably outside the LV, in the \
+         right ventricle or another bright structure; place it inside the LV cavity"
+    )]
+    SeedNotRound {
+        /// One-based position in the seeds list.
+        index: usize,
+        /// The seed.
+        seed: Seed,
+        /// Area over convex-hull area of its region.
+        solidity: f64,
+        /// Smallest solidity accepted.
+        min: f64,
+    },
     /// Tracking through the seed's slice lost the blood pool.
     #[error(
         "tracking lost the LV blood pool on slice {slice} at frame {frame} ({why}); \
@@ -254,9 +270,10 @@ pub fn segment(
         }
         explicit.entry((s.slice, s.frame)).or_insert((i + 1, *s));
     }
-    // Every explicit seed is checked, even where propagation alone would have done.
-    for (index, seed) in explicit.values() {
-        grow_explicit(stack, *index, *seed, params)?;
+    // Every seed is checked, even where propagation alone would have done, and even when an
+    // earlier seed in the same slice and frame is the one used there.
+    for (i, seed) in seeds.iter().enumerate() {
+        grow_explicit(stack, i + 1, *seed, params)?;
     }
 
     let image = |s: usize, f: usize| stack.index_axis(Axis(0), s).index_axis_move(Axis(0), f);
@@ -446,19 +463,34 @@ fn grow_explicit(
     let img = stack
         .index_axis(Axis(0), seed.slice)
         .index_axis_move(Axis(0), seed.frame);
-    grow::grow(img, (seed.row, seed.col), None, &params.grow).map_err(|e| match e {
-        GrowFailure::Dark { value, threshold } => SegmentError::SeedDark {
-            index,
-            seed,
-            value,
-            threshold,
-        },
-        GrowFailure::Runaway { fraction } => SegmentError::SeedRunaway {
-            index,
-            seed,
-            pct: 100.0 * fraction,
-        },
-    })
+    let region =
+        grow::grow(img, (seed.row, seed.col), None, &params.grow).map_err(|e| match e {
+            GrowFailure::Dark { value, threshold } => SegmentError::SeedDark {
+                index,
+                seed,
+                value,
+                threshold,
+            },
+            GrowFailure::Runaway { fraction } => SegmentError::SeedRunaway {
+                index,
+                seed,
+                pct: 100.0 * fraction,
+            },
+        })?;
+    // A user's seed region must look like an LV blood pool: round (the right ventricle is a
+    // crescent, fat a ring). Small regions are spared: pixel steps dominate their hull.
+    if region.area_px() >= guard::SOLIDITY_MIN_PX {
+        let solidity = guard::solidity(region.mask.view());
+        if solidity < guard::MIN_SOLIDITY {
+            return Err(SegmentError::SeedNotRound {
+                index,
+                seed,
+                solidity,
+                min: guard::MIN_SOLIDITY,
+            });
+        }
+    }
+    Ok(region)
 }
 
 /// Grows in a neighbouring image from the deepest point of `parent` that is bright there.
