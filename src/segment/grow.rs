@@ -291,6 +291,34 @@ pub fn grow(
     hint: Option<f32>,
     p: &GrowParams,
 ) -> Result<Region, GrowFailure> {
+    grow_with(image, seed, hint, None, p)
+}
+
+/// Like [`grow`] from a neighbouring slice's region, with that region's blood level kept:
+/// the threshold is refined halfway between `blood` and this image's wall level. A basal or
+/// apical slice only partly inside the cavity has no pure blood of its own; its own median
+/// would pull the threshold down and count pixels that are mostly outside the cavity (the
+/// half-blood rule for partial-volume pixels is common practice).
+///
+/// # Errors
+/// As [`grow`].
+pub fn grow_from_neighbour(
+    image: ArrayView2<f32>,
+    start: (usize, usize),
+    threshold: f32,
+    blood: f32,
+    p: &GrowParams,
+) -> Result<Region, GrowFailure> {
+    grow_with(image, start, Some(threshold), Some(blood), p)
+}
+
+fn grow_with(
+    image: ArrayView2<f32>,
+    seed: (usize, usize),
+    hint: Option<f32>,
+    blood_level: Option<f32>,
+    p: &GrowParams,
+) -> Result<Region, GrowFailure> {
     // A user's seed is judged by the median of its neighbourhood (robust to a noisy pixel);
     // a propagated start point, already chosen bright, by its own value.
     let seed_value = match hint {
@@ -335,7 +363,8 @@ pub fn grow(
             return Err(GrowFailure::Runaway { fraction });
         }
         let (blood, wall) = levels(image, &grown, threshold);
-        let (blood, wall) = (blood.unwrap_or(seed_value), wall.unwrap_or(threshold));
+        let blood = blood_level.or(blood).unwrap_or(seed_value);
+        let wall = wall.unwrap_or(threshold);
         region = Some(Region {
             mask: grown,
             threshold,

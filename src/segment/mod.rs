@@ -286,53 +286,53 @@ pub fn segment(
         .chain((0..primary.frame).rev().map(|f| (f, f + 1)))
         .collect();
     for &(f, from) in &order {
-        let region = if let Some((index, seed)) = explicit.get(&(s0, f)) {
-            grow_explicit(stack, *index, *seed, params)?
-        } else {
-            let parent = chain[from].as_ref().expect("chain filled in order");
-            let region = propagate(image(s0, f), parent, &params.grow).map_err(|why| {
-                SegmentError::Lost {
-                    slice: s0,
-                    frame: f,
-                    why,
-                }
-            })?;
-            let region = match guard(
-                region,
-                parent,
-                params.frame_change_limit,
-                0,
-                params,
-                (s0, f),
-            ) {
-                Guarded::Clean(r) => r,
-                Guarded::Cut(r, e) => {
-                    chain_events.push(e);
-                    r
-                }
-                Guarded::Uncut(why) => {
+        let region =
+            if let Some((index, seed)) = explicit.get(&(s0, f)) {
+                grow_explicit(stack, *index, *seed, params)?
+            } else {
+                let parent = chain[from].as_ref().expect("chain filled in order");
+                let region = propagate(image(s0, f), parent, &params.grow, BloodLevel::Own)
+                    .map_err(|why| SegmentError::Lost {
+                        slice: s0,
+                        frame: f,
+                        why,
+                    })?;
+                let region = match guard(
+                    region,
+                    parent,
+                    params.frame_change_limit,
+                    0,
+                    params,
+                    (s0, f),
+                ) {
+                    Guarded::Clean(r) => r,
+                    Guarded::Cut(r, e) => {
+                        chain_events.push(e);
+                        r
+                    }
+                    Guarded::Uncut(why) => {
+                        return Err(SegmentError::Lost {
+                            slice: s0,
+                            frame: f,
+                            why: format!(
+                                "{why}, against frame {from}; the leak guard could not cut it"
+                            ),
+                        })
+                    }
+                };
+                let ratio = region.area_px() as f64 / parent.area_px().max(1) as f64;
+                if !(1.0 / params.frame_change_limit..=params.frame_change_limit).contains(&ratio) {
                     return Err(SegmentError::Lost {
                         slice: s0,
                         frame: f,
                         why: format!(
-                            "{why}, against frame {from}; the leak guard could not cut it"
-                        ),
-                    })
-                }
-            };
-            let ratio = region.area_px() as f64 / parent.area_px().max(1) as f64;
-            if !(1.0 / params.frame_change_limit..=params.frame_change_limit).contains(&ratio) {
-                return Err(SegmentError::Lost {
-                    slice: s0,
-                    frame: f,
-                    why: format!(
                         "the region is {ratio:.2}× its area in frame {from}, more change between \
                          neighbouring frames than a beating LV shows"
                     ),
-                });
-            }
-            region
-        };
+                    });
+                }
+                region
+            };
         chain[f] = Some(region);
     }
 
@@ -351,7 +351,7 @@ pub fn segment(
                     let next = if let Some((index, seed)) = explicit.get(&(s, f)) {
                         Some(grow_explicit(stack, *index, *seed, params)?)
                     } else if let Some(p) = &parent {
-                        match propagate(image(s, f), p, &params.grow) {
+                        match propagate(image(s, f), p, &params.grow, BloodLevel::Neighbour) {
                             Ok(r) => match guard(r, p, params.leak_area_ratio, params.leak_margin_px, params, (s, f)) {
                                 Guarded::Clean(r) => Some(r),
                                 Guarded::Cut(r, e) => {
@@ -493,12 +493,30 @@ fn grow_explicit(
     Ok(region)
 }
 
+/// How a propagated region sets its blood level.
+#[derive(Clone, Copy)]
+enum BloodLevel {
+    /// Its own median (the next frame of the same slice).
+    Own,
+    /// The neighbouring slice's (see [`grow::grow_from_neighbour`]).
+    Neighbour,
+}
+
 /// Grows in a neighbouring image from the deepest point of `parent` that is bright there.
-fn propagate(image: ArrayView2<f32>, parent: &Region, p: &GrowParams) -> Result<Region, String> {
+fn propagate(
+    image: ArrayView2<f32>,
+    parent: &Region,
+    p: &GrowParams,
+    level: BloodLevel,
+) -> Result<Region, String> {
     let t = parent.threshold;
     let start = deepest_point(parent.mask.view(), |r, c| image[(r, c)] >= t)
         .ok_or_else(|| "no pixel of the neighbouring region is bright here".to_string())?;
-    grow::grow(image, start, Some(t), p).map_err(|e| match e {
+    match level {
+        BloodLevel::Own => grow::grow(image, start, Some(t), p),
+        BloodLevel::Neighbour => grow::grow_from_neighbour(image, start, t, parent.blood, p),
+    }
+    .map_err(|e| match e {
         GrowFailure::Dark { value, threshold } => {
             format!("signal {value:.3} below the threshold {threshold:.3}")
         }
