@@ -5,10 +5,10 @@
 
 use cinegauge::demo;
 use cinegauge::phantom::Phantom;
-use cinegauge::pipeline::{self, RunRequest};
-use cinegauge::recon;
-use cinegauge::sampling::SamplingSpec;
+use cinegauge::pipeline;
 use cinegauge::segment::SegmentParams;
+
+mod common;
 use cinegauge::tolerances::{DICE_MIN_FULLY_SAMPLED, EDV_REL_FULLY_SAMPLED, EF_PP_FULLY_SAMPLED};
 use ndarray::{s, Array4, Axis};
 
@@ -24,20 +24,12 @@ fn dice(a: impl Iterator<Item = (bool, bool)>) -> f64 {
 
 #[test]
 fn fully_sampled_demo_subjects_match_truth() {
-    let run = [RunRequest::with_defaults(
-        recon::by_id("reference").unwrap(),
-        SamplingSpec::full(),
-    )];
     let params = SegmentParams::default();
     for subject in demo::subjects(1) {
         assert!(subject.spec.snr >= 20.0, "the check is stated for SNR ≥ 20");
         let ph = Phantom::new(subject.spec.clone()).unwrap();
         let truth = pipeline::phantom_truth(&ph);
-        let stack = pipeline::reconstruct_phantom(&ph, &run, &Default::default())
-            .unwrap()
-            .remove(0)
-            .stack
-            .unwrap();
+        let stack = common::reference_stack(&ph);
         let seeds = [pipeline::phantom_seed(&ph)];
         let (seg, vol) =
             pipeline::measure_series(stack.view(), &ph.geometry(), &seeds, &params).unwrap();
@@ -163,20 +155,12 @@ fn truth_disc_sum_is_close_to_the_continuous_volume() {
 /// |EDV − truth| ≤ 4 %, Dice to the analytic masks ≥ 0.92 at ED and ≥ 0.88 at ES.
 #[test]
 fn snr_15_to_40_with_coil_shading_stays_within_the_tolerances() {
-    let run = [RunRequest::with_defaults(
-        recon::by_id("reference").unwrap(),
-        SamplingSpec::full(),
-    )];
     for snr in [15.0, 25.0, 40.0] {
         let mut spec = demo::subjects(1)[1].spec.clone();
         spec.snr = snr;
         let ph = Phantom::new(spec).unwrap();
         let t = pipeline::phantom_truth(&ph).numbers;
-        let stack = pipeline::reconstruct_phantom(&ph, &run, &Default::default())
-            .unwrap()
-            .remove(0)
-            .stack
-            .unwrap();
+        let stack = common::reference_stack(&ph);
         let seeds = [pipeline::phantom_seed(&ph)];
         let (seg, vol) = pipeline::measure_series(
             stack.view(),

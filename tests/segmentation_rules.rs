@@ -9,6 +9,8 @@ use cinegauge::sampling::SamplingSpec;
 use cinegauge::seed_jitter::seed_jitter;
 use cinegauge::segment::{BloodPoolConvention, SegmentParams};
 
+mod common;
+
 /// The fully sampled reconstruction of demo subject `k` and its phantom.
 fn reference(k: usize) -> (Phantom, ndarray::Array4<f32>) {
     fully_sampled(demo::subjects(1).remove(k).spec)
@@ -17,15 +19,7 @@ fn reference(k: usize) -> (Phantom, ndarray::Array4<f32>) {
 /// A phantom and its fully sampled reconstruction.
 fn fully_sampled(spec: cinegauge::phantom::PhantomSpec) -> (Phantom, ndarray::Array4<f32>) {
     let ph = Phantom::new(spec).expect("valid phantom");
-    let run = [RunRequest::with_defaults(
-        recon::by_id("reference").expect("registered"),
-        SamplingSpec::full(),
-    )];
-    let stack = pipeline::reconstruct_phantom(&ph, &run, &Default::default())
-        .expect("reconstructs")
-        .remove(0)
-        .stack
-        .expect("stack");
+    let stack = common::reference_stack(&ph);
     (ph, stack)
 }
 

@@ -105,3 +105,16 @@ pub fn max_abs_diff<'a>(
         .map(|(x, y)| (x - y).abs())
         .fold(0.0, f32::max)
 }
+
+/// The fully sampled reference reconstruction of a phantom (`[slice, frame, row, col]`).
+pub fn reference_stack(ph: &cinegauge::phantom::Phantom) -> ndarray::Array4<f32> {
+    let run = [cinegauge::pipeline::RunRequest::with_defaults(
+        cinegauge::recon::by_id("reference").expect("registered"),
+        cinegauge::sampling::SamplingSpec::full(),
+    )];
+    cinegauge::pipeline::reconstruct_phantom(ph, &run, &Default::default())
+        .expect("reconstructs")
+        .remove(0)
+        .stack
+        .expect("stack")
+}
