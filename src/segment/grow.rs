@@ -291,7 +291,24 @@ pub fn grow(
     hint: Option<f32>,
     p: &GrowParams,
 ) -> Result<Region, GrowFailure> {
-    grow_with(image, seed, hint, None, p)
+    grow_with(image, seed, hint, None, p, image.len())
+}
+
+/// Like [`grow`] from a threshold carried over, on a window of an image of `image_len`
+/// pixels (the area limit is a fraction of the whole image). `blood`: see
+/// [`grow_from_neighbour`].
+///
+/// # Errors
+/// As [`grow`].
+pub fn grow_in_window(
+    window: ArrayView2<f32>,
+    start: (usize, usize),
+    threshold: f32,
+    blood: Option<f32>,
+    p: &GrowParams,
+    image_len: usize,
+) -> Result<Region, GrowFailure> {
+    grow_with(window, start, Some(threshold), blood, p, image_len)
 }
 
 /// Like [`grow`] from a neighbouring slice's region, with that region's blood level kept:
@@ -309,7 +326,7 @@ pub fn grow_from_neighbour(
     blood: f32,
     p: &GrowParams,
 ) -> Result<Region, GrowFailure> {
-    grow_with(image, start, Some(threshold), Some(blood), p)
+    grow_with(image, start, Some(threshold), Some(blood), p, image.len())
 }
 
 fn grow_with(
@@ -318,6 +335,7 @@ fn grow_with(
     hint: Option<f32>,
     blood_level: Option<f32>,
     p: &GrowParams,
+    image_len: usize,
 ) -> Result<Region, GrowFailure> {
     // A user's seed is judged by the median of its neighbourhood (robust to a noisy pixel);
     // a propagated start point, already chosen bright, by its own value.
@@ -358,7 +376,7 @@ fn grow_with(
                 threshold,
             });
         }
-        let fraction = area as f64 / grown.len() as f64;
+        let fraction = area as f64 / image_len as f64;
         if fraction > p.max_area_fraction {
             return Err(GrowFailure::Runaway { fraction });
         }

@@ -15,6 +15,7 @@
 pub mod grow;
 pub mod guard;
 pub mod seeds;
+pub mod window;
 
 use std::collections::BTreeMap;
 
@@ -25,6 +26,7 @@ use serde::{Deserialize, Serialize};
 pub use grow::BloodPoolConvention;
 use grow::{deepest_point, GrowFailure, GrowParams, Region};
 pub use seeds::Seed;
+use window::Window;
 
 /// Parameters of the whole segmentation.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -219,11 +221,19 @@ fn guard(
         margin_px,
         max_radius_px: params.leak_max_radius_px,
     };
-    let Some(reason) = guard::leak(&region, neighbour, &limits).filter(|_| params.leak_guard)
-    else {
+    // Both regions on a window around them, wide enough for the largest opening.
+    let dims = region.mask.dim();
+    let margin = params.leak_max_radius_px + 3;
+    let win = Window::around(region.mask.view(), margin)
+        .union(&Window::around(neighbour.mask.view(), margin));
+    let (local, near) = (win.crop(&region), win.crop(neighbour));
+    let Some(reason) = guard::leak(&local, &near, &limits).filter(|_| params.leak_guard) else {
         return Guarded::Clean(region);
     };
-    match guard::cut(&region, neighbour, &limits) {
+    match guard::cut(&local, &near, &limits).map(|c| guard::Cut {
+        region: win.embed(c.region, dims),
+        ..c
+    }) {
         Some(c) => {
             let event = GuardEvent {
                 slice: at.0,
@@ -502,21 +512,44 @@ enum BloodLevel {
     Neighbour,
 }
 
-/// Grows in a neighbouring image from the deepest point of `parent` that is bright there.
+/// Grows in a neighbouring image from the deepest point of `parent` that is bright there,
+/// on a window around the parent (half its size again on every side, at least 8 px), or the
+/// whole image when the region reaches the window's edge.
 fn propagate(
     image: ArrayView2<f32>,
     parent: &Region,
     p: &GrowParams,
     level: BloodLevel,
 ) -> Result<Region, String> {
+    let dims = image.dim();
+    let span = Window::around(parent.mask.view(), 0);
+    let margin = (span.rows.len().max(span.cols.len()) / 2).max(8);
+    let mut win = Window::around(parent.mask.view(), margin);
+    loop {
+        let local = propagate_in(win.view(image), &win.crop(parent), p, level, image.len())?;
+        // Slack 4: the wall ring that sets the threshold lies up to 3 px outside the region.
+        if win.is_full(dims) || !win.clips(local.mask.view(), dims, 4) {
+            return Ok(win.embed(local, dims));
+        }
+        win = Window::full(dims);
+    }
+}
+
+fn propagate_in(
+    image: ArrayView2<f32>,
+    parent: &Region,
+    p: &GrowParams,
+    level: BloodLevel,
+    image_len: usize,
+) -> Result<Region, String> {
     let t = parent.threshold;
     let start = deepest_point(parent.mask.view(), |r, c| image[(r, c)] >= t)
         .ok_or_else(|| "no pixel of the neighbouring region is bright here".to_string())?;
-    match level {
-        BloodLevel::Own => grow::grow(image, start, Some(t), p),
-        BloodLevel::Neighbour => grow::grow_from_neighbour(image, start, t, parent.blood, p),
-    }
-    .map_err(|e| match e {
+    let blood = match level {
+        BloodLevel::Own => None,
+        BloodLevel::Neighbour => Some(parent.blood),
+    };
+    grow::grow_in_window(image, start, t, blood, p, image_len).map_err(|e| match e {
         GrowFailure::Dark { value, threshold } => {
             format!("signal {value:.3} below the threshold {threshold:.3}")
         }
