@@ -302,6 +302,7 @@ fn simulate_then_measure_matches_truth_and_bad_seeds_are_named() {
         "--json",
         "--seed-jitter-px",
         "2",
+        "--overlays",
         "--quiet",
     ]);
     assert!(o.status.success(), "{}", text(&o));
@@ -327,6 +328,14 @@ fn simulate_then_measure_matches_truth_and_bad_seeds_are_named() {
     assert!(j["ef_pct"]["max_change"].as_f64().unwrap() < 1.0, "{j}");
     let csv = std::fs::read_to_string(measured.join("measurements.csv")).unwrap();
     assert!(csv.contains("ef_jitter_max_change_pp"), "{csv}");
+    // One overlay per slice, each the same ED | ES layout as the preview.
+    let preview = image::open(measured.join("ed_es.png")).unwrap();
+    let overlays = std::fs::read_dir(measured.join("overlays")).unwrap().count();
+    assert_eq!(overlays, 11);
+    for k in [0, 5, 10] {
+        let o = image::open(measured.join(format!("overlays/slice_{k:02}.png"))).unwrap();
+        assert_eq!((o.width(), o.height()), (preview.width(), preview.height()));
+    }
     assert!(measured.join("measurements.csv").exists());
     let stdout: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(stdout["runs"][0]["ef_pct"], run["ef_pct"]);

@@ -64,6 +64,10 @@ pub struct MeasureArgs {
     /// repeatability floor. 0 skips it.
     #[arg(long, value_name = "N", default_value_t = 0)]
     pub seed_jitter_px: usize,
+    /// Also write DIR/overlays/slice_NN.png for every slice: ED and ES with the LV contour,
+    /// one window/level for all of them.
+    #[arg(long)]
+    pub overlays: bool,
 }
 
 pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
@@ -114,7 +118,7 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
         accel_effective: a.accel_effective.unwrap_or(a.accel),
     };
     io::ensure_dir(&a.out).context("preparing the output folder")?;
-    write_pictures(&a.out, &series, &seg, &vol, seed_list[0].slice)?;
+    write_pictures(&a.out, &series, &seg, &vol, seed_list[0].slice, a.overlays)?;
     let jitter = (a.seed_jitter_px > 0).then(|| {
         seed_jitter::seed_jitter(
             series.images.view(),
@@ -185,28 +189,40 @@ fn write_pictures(
     series: &io::npy::ImageSeries,
     seg: &cinegauge::segment::Segmentation,
     vol: &cinegauge::measure::Volumetry,
-    slice: usize,
+    seed_slice: usize,
+    overlays: bool,
 ) -> anyhow::Result<()> {
     let masks = seg.masks.mapv(u8::from);
     io::nifti::write_nifti_series(&out.join(MASKS), masks.view(), &series.geometry)
         .context("writing the masks")?;
     let n = &vol.numbers;
-    let im = series.images.index_axis(ndarray::Axis(0), slice);
-    let mut values: Vec<f32> = im.iter().copied().collect();
+    // One window for every picture of the series: 0 to the 99.5th percentile of the stack.
+    let mut values: Vec<f32> = series.images.iter().copied().collect();
     values.sort_by(f32::total_cmp);
     let hi = values[((values.len() - 1) as f64 * 0.995) as usize];
-    let panel = |f: usize| {
-        (
-            im.index_axis(ndarray::Axis(0), f),
-            seg.masks.slice(ndarray::s![slice, f, .., ..]),
-        )
+    let ed_es = |slice: usize| {
+        let im = series.images.index_axis(ndarray::Axis(0), slice);
+        [n.ed_frame, n.es_frame].map(|f| {
+            (
+                im.index_axis_move(ndarray::Axis(0), f),
+                seg.masks.slice(ndarray::s![slice, f, .., ..]),
+            )
+        })
     };
-    io::png::write_panels(
-        &out.join(PREVIEW),
-        &[panel(n.ed_frame), panel(n.es_frame)],
-        (0.0, hi),
-    )
-    .context("writing the preview")?;
+    io::png::write_panels(&out.join(PREVIEW), &ed_es(seed_slice), (0.0, hi))
+        .context("writing the preview")?;
+    if overlays {
+        let dir = out.join("overlays");
+        io::ensure_dir(&dir)?;
+        for slice in 0..series.images.dim().0 {
+            io::png::write_panels(
+                &dir.join(format!("slice_{slice:02}.png")),
+                &ed_es(slice),
+                (0.0, hi),
+            )
+            .with_context(|| format!("writing the overlay of slice {slice}"))?;
+        }
+    }
     Ok(())
 }
 
