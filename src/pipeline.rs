@@ -13,7 +13,7 @@ use crate::phantom::Phantom;
 use crate::recon::{self, Params, ReconInput, ReconPlan, Reconstructor};
 use crate::results::{RunRow, RunStatus, Truth};
 use crate::sampling::{SamplingError, SamplingSpec};
-use crate::segment::{self, Seed, SegmentError, SegmentParams, Segmentation};
+use crate::segment::{self, Seed, SegmentError, SegmentParams, Segmentation, SliceRange};
 
 /// One reconstruction to run on every slice of a subject.
 #[derive(Clone)]
@@ -210,7 +210,23 @@ pub fn measure_series(
     seeds: &[Seed],
     params: &SegmentParams,
 ) -> Result<(Segmentation, Volumetry), SeriesError> {
-    let seg = segment::segment(images, seeds, params)?;
+    measure_series_limited(images, geom, seeds, &[], params)
+}
+
+/// Like [`measure_series`], with the user's slice limits per frame range applied before
+/// measuring.
+///
+/// # Errors
+/// [`SeriesError`] naming the seed, the slice range, or the place at fault.
+pub fn measure_series_limited(
+    images: ArrayView4<f32>,
+    geom: &Geometry,
+    seeds: &[Seed],
+    ranges: &[SliceRange],
+    params: &SegmentParams,
+) -> Result<(Segmentation, Volumetry), SeriesError> {
+    let mut seg = segment::segment(images, seeds, params)?;
+    segment::limit_slices(&mut seg, ranges)?;
     let vol = measure::measure(seg.masks.view(), geom, PhaseChoice::default())?;
     Ok((seg, vol))
 }

@@ -10,7 +10,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::geometry::Geometry;
 use crate::measure::{self, Numbers, PhaseChoice};
-use crate::segment::{self, Seed, SegmentParams};
+use crate::segment::{self, Seed, SegmentParams, SliceRange};
 
 /// Spread of one number over the jittered runs.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -81,12 +81,13 @@ fn spread(values: &[f64], base: f64) -> Option<Spread> {
 }
 
 /// Segments and measures `images` once per offset of [`offsets`]`(px)`, every seed moved by
-/// the same offset (offsets that would leave the image are skipped), and compares with
-/// `base`, the numbers from the unmoved seeds.
+/// the same offset (offsets that would leave the image are skipped) and the same slice limits
+/// applied, and compares with `base`, the numbers from the unmoved seeds.
 pub fn seed_jitter(
     images: ArrayView4<f32>,
     geom: &Geometry,
     seeds: &[Seed],
+    ranges: &[SliceRange],
     params: &SegmentParams,
     px: usize,
     base: &Numbers,
@@ -117,7 +118,8 @@ pub fn seed_jitter(
     let outcomes: Vec<Result<Numbers, String>> = tried
         .par_iter()
         .map(|(_, s)| {
-            let seg = segment::segment(images, s, params).map_err(|e| e.to_string())?;
+            let mut seg = segment::segment(images, s, params).map_err(|e| e.to_string())?;
+            segment::limit_slices(&mut seg, ranges).map_err(|e| e.to_string())?;
             measure::measure(seg.masks.view(), geom, PhaseChoice::default())
                 .map(|v| v.numbers)
                 .map_err(|e| e.to_string())

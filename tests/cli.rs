@@ -330,7 +330,9 @@ fn simulate_then_measure_matches_truth_and_bad_seeds_are_named() {
     assert!(csv.contains("ef_jitter_max_change_pp"), "{csv}");
     // One overlay per slice, each the same ED | ES layout as the preview.
     let preview = image::open(measured.join("ed_es.png")).unwrap();
-    let overlays = std::fs::read_dir(measured.join("overlays")).unwrap().count();
+    let overlays = std::fs::read_dir(measured.join("overlays"))
+        .unwrap()
+        .count();
     assert_eq!(overlays, 11);
     for k in [0, 5, 10] {
         let o = image::open(measured.join(format!("overlays/slice_{k:02}.png"))).unwrap();

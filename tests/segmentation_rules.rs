@@ -84,7 +84,7 @@ fn three_pixel_seed_jitter_moves_ef_by_under_one_point() {
         let geom = ph.geometry();
         let (_, base) =
             pipeline::measure_series(stack.view(), &geom, &seeds, &params).expect("segments");
-        let j = seed_jitter(stack.view(), &geom, &seeds, &params, 3, &base.numbers);
+        let j = seed_jitter(stack.view(), &geom, &seeds, &[], &params, 3, &base.numbers);
         assert_eq!(j.runs_ok, 8, "subject {subject}: {:?}", j.failed);
         let ef = j.ef_pct.expect("runs measured");
         assert!(
@@ -275,4 +275,60 @@ fn aliasing_ghosts_do_not_pull_growth_out_of_the_lv() {
             );
         }
     }
+}
+
+/// Slice limits from the seeds file: leaving out the top slice in frames 0–2 lowers those
+/// frames' volumes by exactly that slice's disc (area × spacing, the method of discs) and
+/// leaves the other frames alone; a limit beyond the stack is refused by table number.
+#[test]
+fn slice_limits_from_the_seeds_file_drop_exactly_those_slices() {
+    use cinegauge::segment::SliceRange;
+    let (ph, stack) = reference(0);
+    let seeds = [pipeline::phantom_seed(&ph)];
+    let geom = ph.geometry();
+    let params = SegmentParams::default();
+    let (_, all) =
+        pipeline::measure_series(stack.view(), &geom, &seeds, &params).expect("segments");
+    let top = ph.spec().slices - 1;
+    let top_counted = (0..top + 1)
+        .rev()
+        .find(|&s| all.slice_areas_mm2[s][0] > 0.0)
+        .expect("a slice");
+    let limit = SliceRange {
+        frames: Some([0, 2]),
+        first_slice: 0,
+        last_slice: top_counted - 1,
+    };
+    let (seg, lim) =
+        pipeline::measure_series_limited(stack.view(), &geom, &seeds, &[limit], &params)
+            .expect("segments");
+    for f in 0..ph.spec().frames {
+        let removed = if f <= 2 {
+            all.slice_areas_mm2[top_counted][f] * geom.slice_spacing_mm / 1000.0
+        } else {
+            0.0
+        };
+        let drop = all.numbers.volume_curve_ml[f] - lim.numbers.volume_curve_ml[f];
+        assert!(
+            (drop - removed).abs() < 1e-9,
+            "frame {f}: dropped {drop} ml, slice held {removed} ml"
+        );
+    }
+    assert!(seg
+        .notes
+        .iter()
+        .any(|n| n.contains("frames 0–2 limited to slices")));
+    let beyond = SliceRange {
+        frames: None,
+        first_slice: 0,
+        last_slice: top + 1,
+    };
+    let e =
+        pipeline::measure_series_limited(stack.view(), &geom, &seeds, &[limit, beyond], &params)
+            .expect_err("refused")
+            .to_string();
+    assert!(
+        e.contains("[[slices]] table #2") && e.contains("outside the stack"),
+        "{e}"
+    );
 }

@@ -103,14 +103,20 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
     for w in &series.warnings {
         say(quiet, &format!("warning: {}: {w}", series.path.display()));
     }
-    let seed_list = seeds::read_seeds(&a.seeds).context("reading seeds")?;
+    let seed_file = seeds::read_seed_file(&a.seeds).context("reading seeds")?;
+    let seed_list = seed_file.seed;
     let mut params = SegmentParams::default();
     if a.papillary_muscles == "excluded" {
         params.grow.convention = BloodPoolConvention::PapillaryExcluded;
     }
-    let (seg, vol) =
-        pipeline::measure_series(series.images.view(), &series.geometry, &seed_list, &params)
-            .with_context(|| format!("measuring {}", series.path.display()))?;
+    let (seg, vol) = pipeline::measure_series_limited(
+        series.images.view(),
+        &series.geometry,
+        &seed_list,
+        &seed_file.slice_ranges,
+        &params,
+    )
+    .with_context(|| format!("measuring {}", series.path.display()))?;
     let plan = ReconPlan {
         method: a.method.clone(),
         pattern: a.pattern.clone(),
@@ -124,6 +130,7 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
             series.images.view(),
             &series.geometry,
             &seed_list,
+            &seed_file.slice_ranges,
             &params,
             a.seed_jitter_px,
             &vol.numbers,

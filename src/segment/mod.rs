@@ -25,7 +25,7 @@ use serde::{Deserialize, Serialize};
 
 pub use grow::BloodPoolConvention;
 use grow::{deepest_point, GrowFailure, GrowParams, Region};
-pub use seeds::Seed;
+pub use seeds::{Seed, SliceRange};
 use window::Window;
 
 /// Parameters of the whole segmentation.
@@ -136,6 +136,14 @@ pub enum SegmentError {
         solidity: f64,
         /// Smallest solidity accepted.
         min: f64,
+    },
+    /// A `[[slices]]` table of the seeds file does not fit the stack.
+    #[error("seeds file, [[slices]] table #{index}: {message}")]
+    SliceRange {
+        /// One-based position among the tables.
+        index: usize,
+        /// What does not fit.
+        message: String,
     },
     /// Tracking through the seed's slice lost the blood pool.
     #[error(
@@ -557,4 +565,48 @@ fn propagate_in(
             format!("region covers {:.0} % of the image", 100.0 * fraction)
         }
     })
+}
+
+/// Clears every slice outside the user's `[[slices]]` limits in the frames they cover, and
+/// notes each limit applied.
+///
+/// # Errors
+/// [`SegmentError::SliceRange`] naming the table whose slices or frames lie outside the stack.
+pub fn limit_slices(seg: &mut Segmentation, ranges: &[SliceRange]) -> Result<(), SegmentError> {
+    let (ns, nf, _, _) = seg.masks.dim();
+    for (i, r) in ranges.iter().enumerate() {
+        let bad = |message: String| SegmentError::SliceRange {
+            index: i + 1,
+            message,
+        };
+        if r.last_slice >= ns {
+            return Err(bad(format!(
+                "last_slice {} is outside the stack's {ns} slices (zero-based)",
+                r.last_slice
+            )));
+        }
+        if let Some([_, b]) = r.frames.filter(|[_, b]| *b >= nf) {
+            return Err(bad(format!(
+                "frame {b} is outside the stack's {nf} frames (zero-based)"
+            )));
+        }
+        let mut cleared = 0usize;
+        for f in (0..nf).filter(|&f| r.covers(f)) {
+            for s in (0..ns).filter(|s| !(r.first_slice..=r.last_slice).contains(s)) {
+                let mut m = seg.masks.slice_mut(ndarray::s![s, f, .., ..]);
+                if m.iter().any(|&b| b) {
+                    cleared += 1;
+                    m.fill(false);
+                }
+            }
+        }
+        let frames = r.frames.map_or("every frame".to_string(), |[a, b]| {
+            format!("frames {a}–{b}")
+        });
+        seg.notes.push(format!(
+            "seeds file: {frames} limited to slices {}–{} ({cleared} slice-frames cleared)",
+            r.first_slice, r.last_slice
+        ));
+    }
+    Ok(())
 }
