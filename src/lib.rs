@@ -28,6 +28,7 @@ pub mod fft;
 pub mod geometry;
 pub mod io;
 pub mod measure;
+pub mod normals;
 pub mod phantom;
 pub mod pipeline;
 pub mod recon;

@@ -95,6 +95,9 @@ pub struct ResultsFile {
     pub inputs: Vec<InputHash>,
     /// One row per run.
     pub runs: Vec<RunRow>,
+    /// Published normal ranges quoted for context, where an output carries them.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub normal_ranges: Option<crate::normals::NormalRanges>,
 }
 
 impl ResultsFile {
@@ -107,6 +110,7 @@ impl ResultsFile {
             study: study.into(),
             inputs,
             runs,
+            normal_ranges: None,
         }
     }
 

@@ -325,6 +325,10 @@ fn simulate_then_measure_matches_truth_and_bad_seeds_are_named() {
     // issue's floor for 3 px on the phantom; 2 px here on a coarser 96 × 96 matrix).
     let j = &run["seed_jitter"];
     assert_eq!(j["runs_ok"], 8, "{j}");
+    // Normal ranges are quoted with their published source and both sexes.
+    let normals = &m["normal_ranges"];
+    assert!(normals["source"].as_str().unwrap().contains("Kawel-Boehm"));
+    assert_eq!(normals["ranges"].as_array().unwrap().len(), 8);
     assert!(j["ef_pct"]["max_change"].as_f64().unwrap() < 1.0, "{j}");
     let csv = std::fs::read_to_string(measured.join("measurements.csv")).unwrap();
     assert!(csv.contains("ef_jitter_max_change_pp"), "{csv}");

@@ -148,7 +148,8 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
             sha256: io::sha256_file(&a.seeds)?,
         },
     ];
-    let file = ResultsFile::new(&a.subject, inputs, vec![row]);
+    let mut file = ResultsFile::new(&a.subject, inputs, vec![row]);
+    file.normal_ranges = Some(cinegauge::normals::adult_lv());
     file.write(&a.out, "measurements")
         .context("writing measurements")?;
     if a.json {
@@ -185,6 +186,25 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
                 n.edv_ml, n.esv_ml, n.sv_ml, n.ef_pct, n.ed_frame, n.es_frame
             ),
         );
+        if let Some(r) = &file.normal_ranges {
+            let band = |q: &str, sex: &str| {
+                r.ranges
+                    .iter()
+                    .find(|x| x.quantity == q && x.sex == sex)
+                    .map(|x| format!("{:.0}–{:.0}", x.lower, x.upper))
+                    .unwrap_or_default()
+            };
+            say(
+                quiet,
+                &format!(
+                    "for context only, published adult normal ranges (mean ± 2 SD; {}): EDV men {} ml, women {} ml; EF {} %",
+                    r.source_convention,
+                    band("edv_ml", "male"),
+                    band("edv_ml", "female"),
+                    band("ef_pct", "male")
+                ),
+            );
+        }
     }
     Ok(())
 }
