@@ -332,6 +332,36 @@ fn simulate_then_measure_matches_truth_and_bad_seeds_are_named() {
     assert!(j["ef_pct"]["max_change"].as_f64().unwrap() < 1.0, "{j}");
     let csv = std::fs::read_to_string(measured.join("measurements.csv")).unwrap();
     assert!(csv.contains("ef_jitter_max_change_pp"), "{csv}");
+    // Proposed seeds: a sheet and a seeds file that `measure` reads.
+    let sugg = tmp.path().join("suggested");
+    let sg = cinegauge(&[
+        "suggest-seeds",
+        "--images",
+        images.to_str().unwrap(),
+        "--out",
+        sugg.to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert!(sg.status.success(), "{}", text(&sg));
+    let proposed = cinegauge::segment::seeds::read_seeds(&sugg.join("seeds.toml")).unwrap();
+    assert_eq!(
+        proposed.len(),
+        1,
+        "one active seed, the others commented out"
+    );
+    let from_proposal = cinegauge(&[
+        "measure",
+        "--images",
+        images.to_str().unwrap(),
+        "--seeds",
+        sugg.join("seeds.toml").to_str().unwrap(),
+        "--out",
+        tmp.path().join("m-proposed").to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert!(from_proposal.status.success(), "{}", text(&from_proposal));
+    let sheet = image::open(sugg.join("seed_sheet.png")).unwrap();
+    assert!(sheet.width() >= 4 * 2 * 96 && sheet.height() >= 3 * 2 * 96);
     // One overlay per slice, each the same ED | ES layout as the preview.
     let preview = image::open(measured.join("ed_es.png")).unwrap();
     let overlays = std::fs::read_dir(measured.join("overlays"))

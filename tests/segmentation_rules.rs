@@ -332,3 +332,53 @@ fn slice_limits_from_the_seeds_file_drop_exactly_those_slices() {
         "{e}"
     );
 }
+
+/// Proposed seeds land in the LV blood pool (the phantom's own tissue map at the seed pixel)
+/// in every slice where one is proposed, at least in the middle half of the slices, and the
+/// most confident one segments the subject to within the fully sampled tolerances.
+#[test]
+fn proposed_seeds_lie_in_the_lv_blood_pool() {
+    use cinegauge::phantom::render::signal;
+    use cinegauge::segment::suggest::suggest;
+    for subject in 0..3 {
+        let (ph, stack) = reference(subject);
+        let (proposals, anchor) = suggest(stack.view(), 0);
+        let anchor = anchor.expect("an anchor");
+        let (mid, _, _) = ph.mid_ventricular_pixel();
+        let ns = ph.spec().slices;
+        assert!(
+            anchor.abs_diff(mid) <= ns / 4,
+            "subject {subject}: anchor slice {anchor}, mid {mid}"
+        );
+        for p in proposals.iter().flatten() {
+            let s = p.seed;
+            assert_eq!(
+                ph.tissue_signal(0, s.slice, s.row, s.col),
+                signal::LV_BLOOD,
+                "subject {subject}: proposal {s}"
+            );
+        }
+        let covered = proposals.iter().filter(|p| p.is_some()).count();
+        assert!(
+            covered >= ns / 2,
+            "subject {subject}: {covered} of {ns} slices"
+        );
+        let seed = proposals[anchor].expect("anchor proposal").seed;
+        let truth = pipeline::phantom_truth(&ph).numbers;
+        let (_, v) = pipeline::measure_series(
+            stack.view(),
+            &ph.geometry(),
+            &[seed],
+            &SegmentParams::default(),
+        )
+        .expect("segments from the proposal");
+        assert!(
+            (v.numbers.ef_pct - truth.ef_pct).abs() <= 2.0,
+            "subject {subject}: seed {seed}: EF {:.1} vs {:.1}, EDV {:.1} vs {:.1}",
+            v.numbers.ef_pct,
+            truth.ef_pct,
+            v.numbers.edv_ml,
+            truth.edv_ml
+        );
+    }
+}

@@ -7,6 +7,7 @@ mod measure;
 mod progress;
 mod reconstruct;
 mod simulate;
+mod suggest;
 
 use clap::{Parser, Subcommand};
 
@@ -64,6 +65,8 @@ pub enum Command {
     Measure(measure::MeasureArgs),
     /// Print what the readers find in a file or folder: dimensions, spacing, frames, timing.
     Inspect(inspect::InspectArgs),
+    /// Propose LV seeds per slice and draw a seed sheet for the user to check.
+    SuggestSeeds(suggest::SuggestArgs),
 }
 
 /// Runs the parsed command.
@@ -80,5 +83,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Patterns(a) => listing::patterns(a),
         Command::Measure(a) => measure::run(a, quiet),
         Command::Inspect(a) => inspect::run(a),
+        Command::SuggestSeeds(a) => suggest::run(a, quiet),
     }
 }

@@ -15,6 +15,7 @@
 pub mod grow;
 pub mod guard;
 pub mod seeds;
+pub mod suggest;
 pub mod window;
 
 use std::collections::BTreeMap;

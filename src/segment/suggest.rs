@@ -1,0 +1,181 @@
+//! Seed proposals for the user to confirm: in every slice, the round bright region that moves
+//! through the cycle (the LV blood pool), found without any seed.
+//!
+//! Per slice at the chosen frame: bright regions are the 4-connected components above the
+//! image's Otsu threshold; each is scored by its solidity (the LV pool is round, the right
+//! ventricle a crescent, fat a ring) times the mean temporal standard deviation inside it
+//! (blood pools move, static tissue does not). The anchor is the region, over all slices,
+//! whose deepest pixel keeps at least 70 % of its signal in every frame (a section that holds blood through the
+//! cycle, as a mid-ventricular one does) with the best score times the square root of its
+//! area; in every slice the best region whose centre lies within two radii of that region's
+//! centre is taken, and the seed slice is the middle one of the slices whose region holds
+//! blood all through the cycle. The proposed seed is the deepest pixel of the region. Proposals
+//! are never used in place of the user's seeds.
+
+use ndarray::{Array2, ArrayView2, ArrayView4, Axis};
+
+use super::grow::{deepest_point, label, otsu};
+use super::guard::{solidity, MIN_SOLIDITY};
+use super::Seed;
+
+/// One proposed seed and why.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Proposal {
+    /// The seed.
+    pub seed: Seed,
+    /// Solidity of its region.
+    pub solidity: f64,
+    /// Area of its region (px).
+    pub area_px: usize,
+}
+
+/// A candidate region of one slice.
+struct Candidate {
+    mask: Array2<bool>,
+    centre: (f64, f64),
+    area: usize,
+    solidity: f64,
+    score: f64,
+}
+
+/// A pixel holds blood through the cycle when it keeps this fraction of its signal at the
+/// chosen frame in every frame (blood against wall is about 3:1 in bSSFP cine, common
+/// practice; 0.7 rejects a pixel that becomes even partly wall).
+const LASTING: f32 = 0.7;
+
+/// Regions smaller than this (px) are not proposed.
+const MIN_AREA_PX: usize = 20;
+
+fn candidates(image: ArrayView2<f32>, motion: &Array2<f32>) -> Vec<Candidate> {
+    let values: Vec<f32> = image.iter().copied().collect();
+    let t = otsu(&values);
+    let bright = image.mapv(|v| v >= t);
+    let labels = label(
+        bright.view(),
+        imageproc::region_labelling::Connectivity::Four,
+    );
+    let n = labels.iter().copied().max().unwrap_or(0);
+    let max_area = image.len() / 4;
+    (1..=n)
+        .filter_map(|l| {
+            let mask = labels.mapv(|x| x == l);
+            let area = mask.iter().filter(|&&b| b).count();
+            if !(MIN_AREA_PX..=max_area).contains(&area) {
+                return None;
+            }
+            let s = solidity(mask.view());
+            if s < MIN_SOLIDITY {
+                return None;
+            }
+            let (mut sr, mut sc, mut m) = (0.0, 0.0, 0.0);
+            for ((r, c), &b) in mask.indexed_iter() {
+                if b {
+                    sr += r as f64;
+                    sc += c as f64;
+                    m += f64::from(motion[(r, c)]);
+                }
+            }
+            let a = area as f64;
+            Some(Candidate {
+                centre: (sr / a, sc / a),
+                area,
+                solidity: s,
+                score: s * m / a,
+                mask,
+            })
+        })
+        .collect()
+}
+
+/// Temporal standard deviation of every pixel of one slice `[frame, row, col]`.
+fn motion(slice: ArrayView4<f32>, k: usize) -> Array2<f32> {
+    let s = slice.index_axis(Axis(0), k);
+    let n = s.dim().0 as f32;
+    let mean = s.mean_axis(Axis(0)).expect("at least one frame");
+    let mut var = Array2::<f32>::zeros(mean.dim());
+    for f in s.outer_iter() {
+        ndarray::Zip::from(&mut var)
+            .and(&f)
+            .and(&mean)
+            .for_each(|v, x, m| *v += (x - m) * (x - m) / n);
+    }
+    var.mapv(f32::sqrt)
+}
+
+/// Proposals for every slice of `[slice, frame, row, col]` at `frame` (`None` where no
+/// region qualifies); the anchor slice's proposal is the most confident one.
+pub fn suggest(stack: ArrayView4<f32>, frame: usize) -> (Vec<Option<Proposal>>, Option<usize>) {
+    let ns = stack.dim().0;
+    let per_slice: Vec<Vec<Candidate>> = (0..ns)
+        .map(|k| {
+            let image = stack.index_axis(Axis(0), k).index_axis_move(Axis(0), frame);
+            candidates(image, &motion(stack, k))
+        })
+        .collect();
+    // The anchor must hold blood all through the cycle (a mid-ventricular section: a basal
+    // one loses its cavity in systole, which also makes it move the most), and among those the
+    // larger section wins.
+    let lasting = |k: usize, c: &Candidate| -> bool {
+        let Some((r, col)) = deepest_point(c.mask.view(), |_, _| true) else {
+            return false;
+        };
+        let slice = stack.index_axis(Axis(0), k);
+        let here = slice[(frame, r, col)];
+        slice
+            .outer_iter()
+            .all(|img| img[(r, col)] >= LASTING * here)
+    };
+    let anchor = per_slice
+        .iter()
+        .enumerate()
+        .flat_map(|(k, cs)| cs.iter().map(move |c| (k, c)))
+        .filter(|(k, c)| lasting(*k, c))
+        .max_by(|a, b| {
+            let key = |c: &Candidate| c.score * (c.area as f64).sqrt();
+            key(a.1).total_cmp(&key(b.1))
+        });
+    let Some((first_choice, a)) = anchor else {
+        return (vec![None; ns], None);
+    };
+    let radius = (a.area as f64 / std::f64::consts::PI).sqrt();
+    let centre = a.centre;
+    let near = |c: &&Candidate| {
+        ((c.centre.0 - centre.0).powi(2) + (c.centre.1 - centre.1).powi(2)).sqrt() <= 2.0 * radius
+    };
+    let best: Vec<Option<&Candidate>> = per_slice
+        .iter()
+        .map(|cs| {
+            cs.iter()
+                .filter(near)
+                .max_by(|x, y| x.score.total_cmp(&y.score))
+        })
+        .collect();
+    // The seed slice: the middle one of those whose region holds blood all through the cycle
+    // (the best-scoring one may be basal in a ventricle that barely shortens).
+    let holding: Vec<usize> = (0..ns)
+        .filter(|&k| best[k].is_some_and(|c| lasting(k, c)))
+        .collect();
+    let anchor_slice = holding
+        .get(holding.len() / 2)
+        .copied()
+        .unwrap_or(first_choice);
+    let proposals = best
+        .iter()
+        .enumerate()
+        .map(|(k, best)| {
+            let best = (*best)?;
+            let (row, col) = deepest_point(best.mask.view(), |_, _| true)?;
+            Some(Proposal {
+                seed: Seed {
+                    slice: k,
+                    frame,
+                    row,
+                    col,
+                },
+                solidity: best.solidity,
+                area_px: best.area,
+            })
+        })
+        .collect();
+    (proposals, Some(anchor_slice))
+}
