@@ -6,6 +6,7 @@
 
 use std::ops::Range;
 use std::path::Path;
+use std::sync::{Mutex, MutexGuard};
 
 use hdf5::types::{VarLenArray, VarLenAscii, VarLenUnicode};
 
@@ -51,15 +52,33 @@ struct DataOnly {
     data: VarLenArray<f32>,
 }
 
+/// Held by every HDF5 call of this module, handle drops included: the system HDF5 library
+/// (Debian's build) is not thread-safe, and concurrent reads of one file were seen to fail
+/// with "bad global heap collection signature".
+static HDF5: Mutex<()> = Mutex::new(());
+
+fn hdf5_lock() -> MutexGuard<'static, ()> {
+    HDF5.lock().unwrap_or_else(|poisoned| poisoned.into_inner())
+}
+
 /// An open ISMRMRD file: every acquisition header in memory, samples read on demand.
 pub struct Hdf5Acquisitions {
-    data: hdf5::Dataset,
+    /// Always `Some` until dropped (taken under the lock in `drop`).
+    data: Option<hdf5::Dataset>,
     heads: Vec<AcqHead>,
+}
+
+impl Drop for Hdf5Acquisitions {
+    fn drop(&mut self) {
+        let _guard = hdf5_lock();
+        self.data.take();
+    }
 }
 
 /// Opens `path`, reads the XML header text and the acquisition headers of `group`
 /// (`dataset` by convention).
 pub fn open(path: &Path, group: &str) -> Result<(String, Hdf5Acquisitions), String> {
+    let _guard = hdf5_lock();
     let file = hdf5::File::open(path).map_err(|e| format!("not a readable HDF5 file: {e}"))?;
     let xml_ds = file
         .dataset(&format!("{group}/xml"))
@@ -82,7 +101,13 @@ pub fn open(path: &Path, group: &str) -> Result<(String, Hdf5Acquisitions), Stri
         .into_iter()
         .map(|h| convert(h.head))
         .collect();
-    Ok((xml, Hdf5Acquisitions { data, heads }))
+    Ok((
+        xml,
+        Hdf5Acquisitions {
+            data: Some(data),
+            heads,
+        },
+    ))
 }
 
 fn convert(h: H5Head) -> AcqHead {
@@ -116,9 +141,10 @@ impl Acquisitions for Hdf5Acquisitions {
     }
 
     fn data(&self, range: Range<usize>) -> Result<Vec<Vec<f32>>, String> {
+        let _guard = hdf5_lock();
         let (a, b) = (range.start, range.end);
-        let rows = self
-            .data
+        let data = self.data.as_ref().ok_or("the HDF5 file is closed")?;
+        let rows = data
             .read_slice_1d::<DataOnly, _>(ndarray::s![a..b])
             .map_err(|e| format!("acquisitions {a}..{b}: sample data unreadable: {e}"))?;
         Ok(rows.iter().map(|r| r.data.to_vec()).collect())
