@@ -78,7 +78,7 @@ mod tests {
     use super::*;
 
     /// SV = EDV − ESV holds for the source's means (160 − 54 = 106 ≈ 108; 132 − 44 = 88 ≈ 87):
-    /// a transcription check on the table, within the rounding of means taken from different
+    /// a check that the table was copied right, within the rounding of means taken from different
     /// subjects (a few ml).
     #[test]
     fn the_table_is_consistent_and_limits_are_two_sd() {

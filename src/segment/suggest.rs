@@ -54,15 +54,19 @@ fn candidates(image: ArrayView2<f32>, motion: &Array2<f32>) -> Vec<Candidate> {
         bright.view(),
         imageproc::region_labelling::Connectivity::Four,
     );
-    let n = labels.iter().copied().max().unwrap_or(0);
+    let n = labels.iter().copied().max().unwrap_or(0) as usize;
     let max_area = image.len() / 4;
+    // Areas in one pass, so that masks are built only for regions of a plausible size (a
+    // noisy background holds hundreds of bright specks).
+    let mut areas = vec![0usize; n + 1];
+    for &l in labels.iter() {
+        areas[l as usize] += 1;
+    }
     (1..=n)
+        .filter(|&l| (MIN_AREA_PX..=max_area).contains(&areas[l]))
         .filter_map(|l| {
-            let mask = labels.mapv(|x| x == l);
-            let area = mask.iter().filter(|&&b| b).count();
-            if !(MIN_AREA_PX..=max_area).contains(&area) {
-                return None;
-            }
+            let mask = labels.mapv(|x| x as usize == l);
+            let area = areas[l];
             let s = solidity(mask.view());
             if s < MIN_SOLIDITY {
                 return None;
