@@ -95,6 +95,11 @@ fn positive(origin: &str, field: &'static str, v: f64) -> Result<f64, GeometryEr
 }
 
 impl Geometry {
+    /// In-plane pixel spacing `(row, col)` in mm.
+    pub fn pixel_mm(&self) -> (f64, f64) {
+        (self.row_spacing_mm, self.col_spacing_mm)
+    }
+
     /// Validates a sidecar for a stack with `frames` frames. `origin` names the file in errors.
     ///
     /// # Errors

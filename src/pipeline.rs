@@ -226,7 +226,7 @@ pub fn measure_series_limited(
     params: &SegmentParams,
 ) -> Result<(Segmentation, Volumetry), SeriesError> {
     let mut seg = segment::segment(images, seeds, params)?;
-    segment::limit_slices(&mut seg, ranges)?;
+    segment::settle_extent(&mut seg, images, seeds, ranges, geom.pixel_mm(), params)?;
     let vol = measure::measure(seg.masks.view(), geom, PhaseChoice::default())?;
     Ok((seg, vol))
 }
@@ -255,15 +255,23 @@ pub fn result_row(
     params: &SegmentParams,
     truth: Option<Truth>,
 ) -> RunRow {
-    let (status, numbers, areas, messages, leak_guard) = match outcome {
+    let (status, numbers, areas, messages, leak_guard, slices_counted) = match outcome {
         Ok((seg, vol)) => (
             RunStatus::Ok,
             Some(vol.numbers),
             Some(vol.slice_areas_mm2),
             seg.notes,
             seg.guard_events,
+            seg.extent,
         ),
-        Err(e) => (RunStatus::Failed, None, None, vec![e], Vec::new()),
+        Err(e) => (
+            RunStatus::Failed,
+            None,
+            None,
+            vec![e],
+            Vec::new(),
+            Vec::new(),
+        ),
     };
     RunRow {
         subject: subject.into(),
@@ -274,11 +282,13 @@ pub fn result_row(
         status,
         numbers,
         blood_pool_convention: params.convention().describe().into(),
+        slice_rule: params.extent.describe(),
         messages,
         slice_areas_mm2: areas,
         truth,
         seed_jitter: None,
         leak_guard,
+        slices_counted,
     }
 }
 

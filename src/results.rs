@@ -9,7 +9,7 @@ use crate::caution::CAUTION;
 use crate::io::{write_atomic, IoError};
 pub use crate::measure::Numbers;
 use crate::seed_jitter::SeedJitter;
-use crate::segment::GuardEvent;
+use crate::segment::{FrameExtent, GuardEvent};
 
 /// Whether a run produced numbers.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -54,6 +54,9 @@ pub struct RunRow {
     pub numbers: Option<Numbers>,
     /// Blood-pool convention in words.
     pub blood_pool_convention: String,
+    /// Which slices count (basal rule and apex stop), in words.
+    #[serde(default)]
+    pub slice_rule: String,
     /// What went wrong, or where the tracker stopped propagation on purpose.
     pub messages: Vec<String>,
     /// Blood-pool area per slice and frame, mm² (absent when failed).
@@ -69,6 +72,10 @@ pub struct RunRow {
     /// Every slice and frame where the leak guard cut a region (empty: it never acted).
     #[serde(default)]
     pub leak_guard: Vec<GuardEvent>,
+    /// Per frame, the first and last slice counted and where the basal rule or the apex stop
+    /// acted (empty when failed).
+    #[serde(default)]
+    pub slices_counted: Vec<FrameExtent>,
 }
 
 /// Provenance of one input.
@@ -159,6 +166,7 @@ impl ResultsFile {
             "peak_filling_rate_ml_s",
             "volume_curve_ml",
             "blood_pool_convention",
+            "slice_rule",
             "slice_areas_mm2",
             "truth_edv_ml",
             "truth_esv_ml",
@@ -168,6 +176,7 @@ impl ResultsFile {
             "esv_jitter_max_change_ml",
             "ef_jitter_max_change_pp",
             "leak_guard_slice_frame",
+            "counted_slices_per_frame",
             "messages",
         ];
         w.write_record(header).expect("in-memory write");
@@ -198,6 +207,7 @@ impl ResultsFile {
                 n.map(|n| serde_json::to_string(&n.volume_curve_ml).expect("numbers"))
                     .unwrap_or_default(),
                 r.blood_pool_convention.clone(),
+                r.slice_rule.clone(),
                 r.slice_areas_mm2
                     .as_ref()
                     .map(|a| serde_json::to_string(a).expect("numbers"))
@@ -213,6 +223,13 @@ impl ResultsFile {
                     &r.leak_guard
                         .iter()
                         .map(|e| [e.slice, e.frame])
+                        .collect::<Vec<_>>(),
+                )
+                .expect("numbers"),
+                serde_json::to_string(
+                    &r.slices_counted
+                        .iter()
+                        .map(|e| e.slices)
                         .collect::<Vec<_>>(),
                 )
                 .expect("numbers"),

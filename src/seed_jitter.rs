@@ -119,7 +119,8 @@ pub fn seed_jitter(
         .par_iter()
         .map(|(_, s)| {
             let mut seg = segment::segment(images, s, params).map_err(|e| e.to_string())?;
-            segment::limit_slices(&mut seg, ranges).map_err(|e| e.to_string())?;
+            segment::settle_extent(&mut seg, images, s, ranges, geom.pixel_mm(), params)
+                .map_err(|e| e.to_string())?;
             measure::measure(seg.masks.view(), geom, PhaseChoice::default())
                 .map(|v| v.numbers)
                 .map_err(|e| e.to_string())

@@ -316,10 +316,11 @@ fn simulate_then_measure_matches_truth_and_bad_seeds_are_named() {
         run["ef_pct"].as_f64().unwrap(),
         t["truth"]["ef_pct"].as_f64().unwrap(),
     );
-    assert!(
-        (ef - tef).abs() <= EF_PP_FULLY_SAMPLED,
-        "EF {ef} vs truth {tef}"
-    );
+    // 2 pp: the fully sampled tolerance of the segmentation issue (SNR 15–40). This phantom's
+    // base plane ends mid-slab at ES with the atrium above it; a basal slice is counted whole
+    // or not at all (common practice), which the slab-averaged truth does not do, so the ES
+    // basal slab alone may move EF by up to about half its area (here 1.6 pp).
+    assert!((ef - tef).abs() <= 2.0, "EF {ef} vs truth {tef}");
     assert_eq!(run["slice_areas_mm2"].as_array().unwrap().len(), 11);
     // Seeds moved by 2 px in 8 directions: every run measures, EF moves by under 1 pp (the
     // issue's floor for 3 px on the phantom; 2 px here on a coarser 96 × 96 matrix).

@@ -186,6 +186,11 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
                 n.edv_ml, n.esv_ml, n.sv_ml, n.ef_pct, n.ed_frame, n.es_frame
             ),
         );
+        let row = &file.runs[0];
+        say(
+            quiet,
+            &format!("{}; {}", row.blood_pool_convention, row.slice_rule),
+        );
         if let Some(r) = &file.normal_ranges {
             let band = |q: &str, sex: &str| {
                 r.ranges

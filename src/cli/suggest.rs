@@ -43,8 +43,9 @@ pub fn run(a: SuggestArgs, quiet: bool) -> anyhow::Result<()> {
         "--frame {}: the series has {nf} frames (zero-based)",
         a.frame
     );
-    let (proposals, anchor) = suggest::suggest(series.images.view(), a.frame);
-    let anchor = anchor.with_context(|| {
+    let found = suggest::suggest(series.images.view(), a.frame, series.geometry.pixel_mm());
+    let proposals = &found.proposals;
+    let anchor = found.anchor.with_context(|| {
         format!(
             "{}: no round bright region that moves through the cycle in any slice at frame {}; \
              place the seeds by hand",
@@ -82,6 +83,13 @@ pub fn run(a: SuggestArgs, quiet: bool) -> anyhow::Result<()> {
         text.push_str(&format!(
             "\n# [[seed]]\n# slice = {}\n# frame = {}\n# row = {}\n# col = {}\n",
             s.slice, s.frame, s.row, s.col
+        ));
+    }
+    for (k, cover) in &found.past_base {
+        text.push_str(&format!(
+            "\n# slice {k}: no seed proposed: its bright region is only {:.0} % surrounded by\n\
+             # myocardium (atrium or outflow tract, past the basal rule).\n",
+            100.0 * cover
         ));
     }
     io::write_atomic(&a.out.join("seeds.toml"), text.as_bytes())?;

@@ -3,7 +3,8 @@
 //! The phantom is the project's own scenario: a truncated prolate-ellipsoid LV cavity
 //! whose volume follows a physiological curve ([`anatomy::volume_at_phase`]), a wall that
 //! thickens in systole at constant myocardial volume, a right-ventricular crescent beside
-//! the septum, papillary muscles inside the cavity, chest wall, lungs and air, rendered
+//! the septum, papillary muscles inside the cavity, a left atrium above the base plane,
+//! chest wall, lungs and air, rendered
 //! with partial volume, and multi-coil k-space with complex Gaussian noise.
 //!
 //! Truth per slice and frame is the cavity area averaged over the slab (papillary muscles
@@ -299,6 +300,11 @@ impl Phantom {
                     rv_offset: (-0.38 * r_epi, -0.12 * r_epi),
                     body_axes,
                     fat_mm: 9.0,
+                    atrium: render::Atrium {
+                        offset: (0.1 * ed.a, 0.25 * ed.a),
+                        axes: (0.65 * ed.a, 0.6 * ed.a),
+                        height_mm: 40.0,
+                    },
                     lungs: [
                         (
                             (0.62 * body_axes.0, -0.05 * body_axes.1),
@@ -356,6 +362,15 @@ impl Phantom {
         self.scenes[frame]
             .sample(x, y, self.slice_z_mm(slice))
             .signal
+    }
+
+    /// Whether the centre of pixel `(row, col)` of `slice` at `frame` lies in the LV blood pool
+    /// (papillary muscles included; the atrium above the base is not).
+    pub fn in_lv_pool(&self, frame: usize, slice: usize, row: usize, col: usize) -> bool {
+        let (x, y) = self.pixel_xy_mm(row as f64, col as f64);
+        self.scenes[frame]
+            .sample(x, y, self.slice_z_mm(slice))
+            .lv_pool
     }
 
     /// LV shape at `frame`.

@@ -52,7 +52,29 @@ pub struct Scene {
     pub fat_mm: f64,
     /// Lung ellipses: centre `(x, y)` and semi-axes `(x, y)` in mm.
     pub lungs: [((f64, f64), (f64, f64)); 2],
+    /// Left atrium above the base plane.
+    pub atrium: Atrium,
 }
+
+/// The left atrium: a blood-filled half-ellipsoid standing on the LV base plane (it follows
+/// the plane down in systole), with a thin wall and, around it, lung and pericardial recesses
+/// (dark). Its blood is as bright as the ventricle's and joins it at the base, so a region
+/// grown from the LV walks into it unless a basal rule stops it.
+#[derive(Debug, Clone, Copy)]
+pub struct Atrium {
+    /// Centre offset from the LV long axis `(dx, dy)` in mm.
+    pub offset: (f64, f64),
+    /// In-plane semi-axes `(x, y)` at the base plane, in mm.
+    pub axes: (f64, f64),
+    /// Height above the base plane, in mm.
+    pub height_mm: f64,
+}
+
+/// Atrial wall thickness (mm); from memory, the left atrial wall is about 2 mm thick, far
+/// thinner than the ventricle's.
+pub const ATRIAL_WALL_MM: f64 = 2.0;
+/// Dark surroundings (lung, pericardial recesses) outside the atrial wall (mm).
+const ATRIAL_SURROUND_MM: f64 = 12.0;
 
 /// Which tissue lies at a point, and whether it counts as LV blood pool (papillary
 /// muscles are counted in the blood pool).
@@ -90,6 +112,9 @@ impl Scene {
                     papillary: pap,
                 };
             }
+        }
+        if let Some(signal) = self.atrium_signal(dx, dy, z) {
+            return tissue(signal);
         }
         let epi = lv.epi_scale(z);
         // The RV follows the epicardial profile in z, from 12 mm above the apex to the base.
@@ -130,6 +155,28 @@ impl Scene {
             }
         }
         tissue(signal::TISSUE)
+    }
+
+    /// Signal of the atrium, its wall or its dark surroundings at `(dx, dy)` from the LV axis
+    /// and height `z`; `None` outside them.
+    fn atrium_signal(&self, dx: f64, dy: f64, z: f64) -> Option<f32> {
+        let la = &self.atrium;
+        let u = z - self.lv.z_base;
+        if u <= 0.0 || u > la.height_mm {
+            return None;
+        }
+        let s = (1.0 - (u / la.height_mm).powi(2)).sqrt();
+        let (ax, ay) = (la.axes.0 * s, la.axes.1 * s);
+        let (x, y) = (dx - la.offset.0, dy - la.offset.1);
+        if inside_ellipse(x, y, ax, ay) {
+            return Some(signal::LV_BLOOD);
+        }
+        let w = ATRIAL_WALL_MM;
+        if inside_ellipse(x, y, ax + w, ay + w) {
+            return Some(signal::MYOCARDIUM);
+        }
+        let d = w + ATRIAL_SURROUND_MM;
+        inside_ellipse(x, y, ax + d, ay + d).then_some(signal::LUNG)
     }
 
     /// Whether a wall point `(dx, dy)` from the LV centre lies in the septal sector (within

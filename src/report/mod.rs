@@ -63,8 +63,9 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
             accel_text.join(", ")
         ),
         format!(
-            "Volumes by the method of discs (area x centre-to-centre slice spacing); {}.",
-            results.runs.first().map(|r| r.blood_pool_convention.as_str()).unwrap_or("no runs")
+            "Volumes by the method of discs (area x centre-to-centre slice spacing); {}; {}.",
+            results.runs.first().map(|r| r.blood_pool_convention.as_str()).unwrap_or("no runs"),
+            results.runs.first().map(|r| r.slice_rule.as_str()).unwrap_or("")
         ),
         "ED = frame of largest LV volume, ES = frame of smallest. R nominal / effective (all lines / acquired lines).".into(),
     ];

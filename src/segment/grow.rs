@@ -250,7 +250,7 @@ fn window(image: ArrayView2<f32>, centre: (usize, usize), radius: usize) -> Vec<
 
 /// Blood and wall levels of a region: median of its above-threshold interior, median of a
 /// ring 2–3 px outside it.
-fn levels(
+pub(crate) fn levels(
     image: ArrayView2<f32>,
     region: &Array2<bool>,
     threshold: f32,

@@ -9,9 +9,12 @@
 //! a region that grew too large, reached far beyond its neighbour or lost its compactness is
 //! cut back, and each cut is recorded ([`GuardEvent`]); a final pass walks every slice's
 //! frames the same way. Further seeds override propagation at their own slice and frame.
+//! Which slices count is settled afterwards ([`settle_extent`]): the basal rule and the apex
+//! stop ([`extent`]), then the user's slice limits.
 //! Every reconstruction of a subject is segmented with the same seeds and the same
 //! parameters.
 
+pub mod extent;
 pub mod grow;
 pub mod guard;
 pub mod seeds;
@@ -24,6 +27,7 @@ use ndarray::{Array4, ArrayView2, ArrayView4, Axis};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
+pub use extent::{ExtentRule, FrameExtent};
 pub use grow::BloodPoolConvention;
 use grow::{deepest_point, GrowFailure, GrowParams, Region};
 pub use seeds::{Seed, SliceRange};
@@ -47,6 +51,8 @@ pub struct SegmentParams {
     pub leak_max_radius_px: usize,
     /// Whether the leak guard runs at all (off only to see what it prevents).
     pub leak_guard: bool,
+    /// Basal rule and apex stop.
+    pub extent: ExtentRule,
 }
 
 impl SegmentParams {
@@ -65,6 +71,7 @@ impl Default for SegmentParams {
             frame_change_limit: 2.0,
             leak_max_radius_px: 6,
             leak_guard: true,
+            extent: ExtentRule::default(),
         }
     }
 }
@@ -173,6 +180,9 @@ pub struct Segmentation {
     pub guard_events: Vec<GuardEvent>,
     /// Convention used.
     pub convention: BloodPoolConvention,
+    /// Per frame, the slices counted and where the basal rule or apex stop acted (filled by
+    /// [`settle_extent`]).
+    pub extent: Vec<FrameExtent>,
 }
 
 /// Where the leak guard cut a region, why, and by how much.
@@ -470,6 +480,7 @@ pub fn segment(
         notes,
         guard_events,
         convention: params.convention(),
+        extent: Vec::new(),
     })
 }
 
@@ -610,4 +621,71 @@ pub fn limit_slices(seg: &mut Segmentation, ranges: &[SliceRange]) -> Result<(),
         ));
     }
     Ok(())
+}
+
+/// Settles which slices count: the basal rule and the apex stop (outside frames the user fixed),
+/// then the user's `[[slices]]` limits; records per frame the slices counted and adds one note
+/// per stop. `pixel_mm` is the `(row, col)` spacing.
+///
+/// # Errors
+/// [`SegmentError::SliceRange`] naming the table that does not fit the stack.
+pub fn settle_extent(
+    seg: &mut Segmentation,
+    stack: ArrayView4<f32>,
+    seeds: &[Seed],
+    ranges: &[SliceRange],
+    pixel_mm: (f64, f64),
+    params: &SegmentParams,
+) -> Result<(), SegmentError> {
+    let mut extents = extent::apply(
+        stack,
+        &mut seg.masks,
+        seeds,
+        ranges,
+        pixel_mm,
+        &params.extent,
+    );
+    limit_slices(seg, ranges)?;
+    extent::record_counted(seg.masks.view(), &mut extents);
+    let stops = |pick: fn(&extent::StopReason) -> bool| {
+        extents
+            .iter()
+            .flat_map(|e| {
+                e.stops
+                    .iter()
+                    .filter(|s| pick(&s.reason))
+                    .map(|s| (e.frame, s.slice))
+            })
+            .collect::<Vec<_>>()
+    };
+    let basal = stops(|r| matches!(r, extent::StopReason::BasalCover { .. }));
+    let apex = stops(|r| matches!(r, extent::StopReason::ApexVanished { .. }));
+    if !basal.is_empty() {
+        seg.notes.push(format!(
+            "basal rule: {} slice-frames stopped where the blood pool was less than {:.0} % \
+             surrounded by myocardium (slices {})",
+            basal.len(),
+            100.0 * params.extent.min_cover,
+            slice_list(&basal)
+        ));
+    }
+    if !apex.is_empty() {
+        seg.notes.push(format!(
+            "apex stop: {} slice-frames stopped where the cavity shrank below {} px (slices {})",
+            apex.len(),
+            params.extent.apex_min_px,
+            slice_list(&apex)
+        ));
+    }
+    seg.extent = extents;
+    Ok(())
+}
+
+/// The distinct slices of `(frame, slice)` pairs, listed.
+fn slice_list(at: &[(usize, usize)]) -> String {
+    let set: std::collections::BTreeSet<usize> = at.iter().map(|&(_, s)| s).collect();
+    set.iter()
+        .map(usize::to_string)
+        .collect::<Vec<_>>()
+        .join(", ")
 }

@@ -14,7 +14,8 @@
 
 use ndarray::{Array2, ArrayView2, ArrayView4, Axis};
 
-use super::grow::{deepest_point, label, otsu};
+use super::extent::{dark_level, scan_border, ExtentRule, Levels};
+use super::grow::{deepest_point, label, levels, otsu};
 use super::guard::{solidity, MIN_SOLIDITY};
 use super::Seed;
 
@@ -106,9 +107,24 @@ fn motion(slice: ArrayView4<f32>, k: usize) -> Array2<f32> {
     var.mapv(f32::sqrt)
 }
 
-/// Proposals for every slice of `[slice, frame, row, col]` at `frame` (`None` where no
-/// region qualifies); the anchor slice's proposal is the most confident one.
-pub fn suggest(stack: ArrayView4<f32>, frame: usize) -> (Vec<Option<Proposal>>, Option<usize>) {
+/// What [`suggest`] found.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Suggestions {
+    /// A proposal per slice (`None` where no region qualifies).
+    pub proposals: Vec<Option<Proposal>>,
+    /// The slice of the most confident proposal (`None`: nothing found anywhere).
+    pub anchor: Option<usize>,
+    /// Slices whose best region failed the basal rule (less than half surrounded by
+    /// myocardium: atrium or outflow tract), with its myocardial cover; no seed is proposed
+    /// there.
+    pub past_base: Vec<(usize, f64)>,
+}
+
+/// Proposals for every slice of `[slice, frame, row, col]` at `frame` (pixel spacing
+/// `pixel_mm`, `(row, col)`); the anchor slice's proposal is the most confident one. A region
+/// that fails the basal rule ([`super::extent`], judged with the anchor region's blood and
+/// wall levels) is set aside, not proposed.
+pub fn suggest(stack: ArrayView4<f32>, frame: usize, pixel_mm: (f64, f64)) -> Suggestions {
     let ns = stack.dim().0;
     let per_slice: Vec<Vec<Candidate>> = (0..ns)
         .map(|k| {
@@ -139,19 +155,45 @@ pub fn suggest(stack: ArrayView4<f32>, frame: usize) -> (Vec<Option<Proposal>>, 
             key(a.1).total_cmp(&key(b.1))
         });
     let Some((first_choice, a)) = anchor else {
-        return (vec![None; ns], None);
+        return Suggestions {
+            proposals: vec![None; ns],
+            anchor: None,
+            past_base: Vec::new(),
+        };
     };
     let radius = (a.area as f64 / std::f64::consts::PI).sqrt();
     let centre = a.centre;
     let near = |c: &&Candidate| {
         ((c.centre.0 - centre.0).powi(2) + (c.centre.1 - centre.1).powi(2)).sqrt() <= 2.0 * radius
     };
+    let image = |k: usize| stack.index_axis(Axis(0), k).index_axis_move(Axis(0), frame);
+    let (blood, wall) = levels(image(first_choice), &a.mask, f32::NEG_INFINITY);
+    let dark = dark_level(image(first_choice));
+    let rule = ExtentRule::default();
+    let mut past_base = Vec::new();
     let best: Vec<Option<&Candidate>> = per_slice
         .iter()
-        .map(|cs| {
-            cs.iter()
+        .enumerate()
+        .map(|(k, cs)| {
+            let c = cs
+                .iter()
                 .filter(near)
-                .max_by(|x, y| x.score.total_cmp(&y.score))
+                .max_by(|x, y| x.score.total_cmp(&y.score))?;
+            let (Some(b0), Some(w0)) = (blood, wall) else {
+                return Some(c);
+            };
+            let b = levels(image(k), &c.mask, f32::NEG_INFINITY).0.unwrap_or(b0);
+            let lv = Levels {
+                blood: b,
+                wall: w0 * b / b0,
+                dark,
+            };
+            let cover = scan_border(image(k), c.mask.view(), lv, pixel_mm, &rule).cover();
+            if cover < rule.min_cover {
+                past_base.push((k, cover));
+                return None;
+            }
+            Some(c)
         })
         .collect();
     // The seed slice: the middle one of those whose region holds blood all through the cycle
@@ -181,5 +223,9 @@ pub fn suggest(stack: ArrayView4<f32>, frame: usize) -> (Vec<Option<Proposal>>, 
             })
         })
         .collect();
-    (proposals, Some(anchor_slice))
+    Suggestions {
+        proposals,
+        anchor: Some(anchor_slice),
+        past_base,
+    }
 }
