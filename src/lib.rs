@@ -39,4 +39,5 @@ pub mod sampling;
 pub mod seed_jitter;
 pub mod segment;
 pub mod simulate;
+pub mod stats;
 pub mod tolerances;
