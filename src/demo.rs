@@ -201,5 +201,7 @@ pub fn run(
         rows.extend(run_subject(&s.code, &s.spec, &runs, &prep, &params)?);
     }
     progress(subjects.len(), subjects.len(), "done");
-    Ok(ResultsFile::new(&study(), inputs, rows))
+    let mut file = ResultsFile::new(&study(), inputs, rows);
+    file.compare(&crate::acceptance::default_criteria());
+    Ok(file)
 }

@@ -22,6 +22,9 @@
 //! [`segment`] → [`measure`] → [`results`] → [`report`].
 #![deny(missing_docs)]
 
+pub mod acceptance;
+pub mod agreement;
+pub mod agreement_table;
 pub mod caution;
 pub mod demo;
 pub mod fft;

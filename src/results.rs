@@ -5,6 +5,8 @@ use std::path::Path;
 
 use serde::{Deserialize, Serialize};
 
+use crate::acceptance::Criterion;
+use crate::agreement::{self, Acceptance, AgreementRow};
 use crate::caution::CAUTION;
 use crate::io::{write_atomic, IoError};
 pub use crate::measure::Numbers;
@@ -105,9 +107,24 @@ pub struct ResultsFile {
     /// Published normal ranges quoted for context, where an output carries them.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub normal_ranges: Option<crate::normals::NormalRanges>,
+    /// Agreement of each method at each acceleration with the reference, per quantity.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub agreement: Vec<AgreementRow>,
+    /// Verdicts against the declared acceptance criteria.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub acceptance: Option<Acceptance>,
 }
 
 impl ResultsFile {
+    /// Compares every method at every acceleration with the reference across subjects and
+    /// judges it against `criteria` (nothing to compare: left empty).
+    pub fn compare(&mut self, criteria: &[Criterion]) {
+        self.agreement = agreement::agreement_rows(&self.runs, criteria);
+        if !self.agreement.is_empty() {
+            self.acceptance = Some(agreement::acceptance(&self.runs, &self.agreement, criteria));
+        }
+    }
+
     /// A results file stamped with this tool's name, version and the caution.
     pub fn new(study: &str, inputs: Vec<InputHash>, runs: Vec<RunRow>) -> Self {
         ResultsFile {
@@ -118,6 +135,8 @@ impl ResultsFile {
             inputs,
             runs,
             normal_ranges: None,
+            agreement: Vec::new(),
+            acceptance: None,
         }
     }
 

@@ -124,6 +124,161 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
         .nth(1)
         .unwrap()
         .starts_with("subject,method,pattern,accel_nominal,accel_effective"));
+
+    // Agreement rows: 4 methods × 3 R × (EF in pp; EDV, ESV, SV in ml and %), with the keys of
+    // the public vocabulary, differences taken against the same subjects' reference runs.
+    let rows = v["agreement"].as_array().unwrap();
+    assert_eq!(rows.len(), 4 * 3 * 7);
+    for key in [
+        "method",
+        "pattern",
+        "accel_nominal",
+        "quantity",
+        "unit",
+        "n",
+        "bias",
+        "sd_diff",
+        "loa_lower",
+        "loa_upper",
+        "bias_ci_lower",
+        "bias_ci_upper",
+        "loa_lower_ci_lower",
+        "loa_lower_ci_upper",
+        "loa_upper_ci_lower",
+        "loa_upper_ci_upper",
+        "icc",
+        "icc_form",
+        "ccc",
+        "verdict",
+    ] {
+        assert!(
+            rows.iter().all(|r| r.get(key).is_some()),
+            "agreement key {key}"
+        );
+    }
+    let ef_of = |subject: &str, method: &str, r: f64| {
+        runs.iter()
+            .find(|x| x["subject"] == subject && x["method"] == method && x["accel_nominal"] == r)
+            .and_then(|x| x["ef_pct"].as_f64())
+    };
+    let row = rows
+        .iter()
+        .find(|r| {
+            r["method"] == "cg-sense" && r["accel_nominal"] == 4.0 && r["quantity"] == "ef_pct"
+        })
+        .unwrap();
+    let diffs: Vec<f64> = ["TW-01", "TW-02", "TW-03"]
+        .iter()
+        .map(|s| ef_of(s, "cg-sense", 4.0).unwrap() - ef_of(s, "reference", 1.0).unwrap())
+        .collect();
+    let bias = diffs.iter().sum::<f64>() / 3.0;
+    assert!(
+        (row["bias"].as_f64().unwrap() - bias).abs() < 1e-9,
+        "bias is the mean difference"
+    );
+    assert_eq!(row["n"], 3);
+    // Verdicts: one per method and R; a method with a failed run fails; every method has a
+    // highest passing R entry.
+    let acc = &v["acceptance"];
+    let verdicts = acc["verdicts"].as_array().unwrap();
+    assert_eq!(verdicts.len(), 12);
+    for vd in verdicts {
+        if !vd["failed_subjects"].as_array().unwrap().is_empty() {
+            assert_eq!(vd["outcome"], "fail", "{vd}");
+        }
+    }
+    assert_eq!(acc["highest_passing"].as_array().unwrap().len(), 4);
+    assert!(
+        !std::str::from_utf8(&std::fs::read(out.join("results.json")).unwrap())
+            .unwrap()
+            .contains("NaN")
+    );
+}
+
+/// `agreement` on the Bland & Altman 1986 peak-flow table (Table 1, first readings): the
+/// published mean difference (−2.1 l/min) and SD (38.8 l/min) in the text, and the same
+/// numbers in JSON; bad tables are refused naming the row and column.
+#[test]
+fn agreement_command_reads_a_table_and_names_bad_cells() {
+    let tmp = tempfile::tempdir().unwrap();
+    let w = [
+        494, 395, 516, 434, 476, 557, 413, 442, 650, 433, 417, 656, 267, 478, 178, 423, 427,
+    ];
+    let m = [
+        512, 430, 520, 428, 500, 600, 364, 380, 658, 445, 432, 626, 260, 477, 259, 350, 451,
+    ];
+    let mut table = String::from("# peak flow, l/min\nsubject,wright,mini\n");
+    for (i, (a, b)) in w.iter().zip(&m).enumerate() {
+        table += &format!("{},{a},{b}\n", i + 1);
+    }
+    let path = tmp.path().join("pef.csv");
+    std::fs::write(&path, &table).unwrap();
+    let p = path.to_str().unwrap();
+    let o = cinegauge(&[
+        "agreement",
+        p,
+        "--columns",
+        "wright,mini",
+        "--margin",
+        "pef=80",
+    ]);
+    assert!(o.status.success(), "{}", text(&o));
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(out.contains("bias          -2.118"), "{out}");
+    assert!(out.contains("SD of diff.   38.765"), "{out}");
+    assert!(out.contains("not for diagnostic use"));
+    let o = cinegauge(&["agreement", p, "--columns", "wright,mini", "--json"]);
+    let j: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert!((j["pairwise"]["bland_altman"]["sd_diff"].as_f64().unwrap() - 38.765).abs() < 1e-3);
+    assert_eq!(j["icc"].as_array().unwrap().len(), 6);
+
+    let bad = |name: &str, body: &str, columns: &str, needles: &[&str]| {
+        let f = tmp.path().join(name);
+        std::fs::write(&f, body).unwrap();
+        let o = cinegauge(&["agreement", f.to_str().unwrap(), "--columns", columns]);
+        assert_eq!(o.status.code(), Some(1), "{name}: {}", text(&o));
+        let t = text(&o);
+        assert!(!t.contains("panicked"), "{t}");
+        for n in needles {
+            assert!(t.contains(n), "{name}: `{n}` not in: {t}");
+        }
+    };
+    bad(
+        "two.csv",
+        "a,b\n1,2\n3,5\n",
+        "a,b",
+        &["two.csv", "2 values", "at least 3"],
+    );
+    bad(
+        "text.csv",
+        "a,b\n1,2\n3,x5\n4,4\n",
+        "a,b",
+        &["text.csv", "row 2", "column `b`", "x5"],
+    );
+    bad(
+        "short.csv",
+        "a,b\n1,2\n3\n4,4\n",
+        "a,b",
+        &["short.csv", "row 2", "column `b`"],
+    );
+    bad(
+        "empty.csv",
+        "a,b\n1,2\n3,\n4,4\n",
+        "a,b",
+        &["empty.csv", "row 2", "column `b`"],
+    );
+    bad(
+        "flat.csv",
+        "a,b\n1,0\n2,1\n3,2\n",
+        "a,b",
+        &["flat.csv", "zero variance"],
+    );
+    bad(
+        "names.csv",
+        "a,b\n1,2\n2,3\n3,5\n",
+        "a,c",
+        &["names.csv", "no column `c`"],
+    );
 }
 
 #[test]

@@ -57,6 +57,42 @@ pub fn run(a: DemoArgs, quiet: bool) -> anyhow::Result<()> {
             };
             eprintln!("{line}");
         }
+        if let Some(acc) = &results.acceptance {
+            eprintln!(
+                "\nagainst the default criteria: {}",
+                acc.criteria_text.join("; ")
+            );
+            for v in &acc.verdicts {
+                let missed: Vec<&str> = v
+                    .checks
+                    .iter()
+                    .filter(|c| !c.pass)
+                    .map(|c| c.criterion.as_str())
+                    .collect();
+                let why = match (v.failed_subjects.is_empty(), missed.is_empty()) {
+                    (true, true) => String::new(),
+                    (false, _) => format!(" (failed on {})", v.failed_subjects.join(", ")),
+                    (true, false) => format!(" (missed: {})", missed.join("; ")),
+                };
+                eprintln!(
+                    "{:16} {:16} R={:<2} {}{why}",
+                    v.method,
+                    v.pattern,
+                    v.accel_nominal,
+                    v.outcome.describe()
+                );
+            }
+            for h in &acc.highest_passing {
+                eprintln!(
+                    "{} ({}): {}",
+                    h.method,
+                    h.pattern,
+                    h.accel_nominal
+                        .map(|r| format!("passes up to R = {r}"))
+                        .unwrap_or_else(|| "fails at the lowest R tested".into())
+                );
+            }
+        }
     }
     say(
         quiet,

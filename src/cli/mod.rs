@@ -1,5 +1,6 @@
 //! Command-line interface: argument definitions and the commands they run.
 
+mod agreement;
 mod demo;
 mod inspect;
 mod listing;
@@ -67,6 +68,8 @@ pub enum Command {
     Inspect(inspect::InspectArgs),
     /// Propose LV seeds per slice and draw a seed sheet for the user to check.
     SuggestSeeds(suggest::SuggestArgs),
+    /// Agreement statistics on a CSV table of paired measurements (Bland–Altman, ICC, CCC, tests).
+    Agreement(agreement::AgreementArgs),
 }
 
 /// Runs the parsed command.
@@ -84,5 +87,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Measure(a) => measure::run(a, quiet),
         Command::Inspect(a) => inspect::run(a),
         Command::SuggestSeeds(a) => suggest::run(a, quiet),
+        Command::Agreement(a) => agreement::run(a),
     }
 }

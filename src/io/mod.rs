@@ -6,6 +6,7 @@ pub mod kspace;
 pub mod nifti;
 pub mod npy;
 pub mod png;
+pub mod table;
 
 use std::io::Write;
 use std::path::{Path, PathBuf};
