@@ -5,6 +5,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::acceptance::{Check, Criterion, Measure, Outcome, QUANTITIES};
+use crate::fidelity::Fidelity;
 use crate::measure::Numbers;
 use crate::results::{RunRow, RunStatus};
 use crate::stats::bland_altman::{bland_altman, Options};
@@ -126,6 +127,9 @@ pub struct Verdict {
     /// EF change against the seed-sensitivity floor, where the reference runs carry one.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub seed_floor: Option<SeedFloor>,
+    /// Image quality and mask overlap against the reference, each the mean over subjects.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub fidelity: Option<Fidelity>,
 }
 
 /// The highest acceleration at which a method passes.
@@ -411,6 +415,7 @@ pub fn acceptance(runs: &[RunRow], rows: &[AgreementRow], criteria: &[Criterion]
             outcome,
             temporal: temporal(&p),
             seed_floor,
+            fidelity: mean_fidelity(&g.runs),
         });
     }
     let mut highest: Vec<HighestPassing> = Vec::new();
@@ -443,6 +448,29 @@ pub fn acceptance(runs: &[RunRow], rows: &[AgreementRow], criteria: &[Criterion]
         verdicts,
         highest_passing: highest,
     }
+}
+
+/// Each fidelity figure averaged over the runs that carry it.
+fn mean_fidelity(runs: &[&RunRow]) -> Option<Fidelity> {
+    let all: Vec<&Fidelity> = runs.iter().filter_map(|r| r.fidelity.as_ref()).collect();
+    if all.is_empty() {
+        return None;
+    }
+    let mean = |pick: fn(&Fidelity) -> Option<f64>| {
+        let v: Vec<f64> = all.iter().filter_map(|f| pick(f)).collect();
+        (!v.is_empty()).then(|| v.iter().sum::<f64>() / v.len() as f64)
+    };
+    Some(Fidelity {
+        nrmse: mean(|f| f.nrmse),
+        psnr_db: mean(|f| f.psnr_db),
+        ssim: mean(|f| Some(f.ssim)).unwrap_or_default(),
+        ssim_lv: mean(|f| f.ssim_lv),
+        dice_mean: mean(|f| f.dice_mean),
+        dice_ed: mean(|f| f.dice_ed),
+        dice_es: mean(|f| f.dice_es),
+        hd95_ed_mm: mean(|f| f.hd95_ed_mm),
+        hd95_es_mm: mean(|f| f.hd95_es_mm),
+    })
 }
 
 /// Mean over subjects of the reference runs' largest EF change under seed jitter.
@@ -526,6 +554,7 @@ mod tests {
             seed_jitter: None,
             leak_guard: Vec::new(),
             slices_counted: Vec::new(),
+            fidelity: None,
         }
     }
 

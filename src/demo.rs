@@ -5,6 +5,7 @@
 
 use serde::Deserialize;
 
+use crate::fidelity::{self, Fidelity};
 use crate::phantom::{Phantom, PhantomSpec};
 use crate::pipeline::{self, CoilPrep, RunRequest};
 use crate::recon::{self, Params};
@@ -166,14 +167,48 @@ pub fn run_subject(
     let geom = ph.geometry();
     let truth = pipeline::phantom_truth(&ph);
     let recs = pipeline::reconstruct_phantom(&ph, runs, prep)?;
-    Ok(recs
+    let measured: Vec<_> = recs
         .into_iter()
         .map(|rec| {
-            let outcome = rec.stack.and_then(|stack| {
+            let outcome = rec.stack.as_ref().map_err(Clone::clone).and_then(|stack| {
                 pipeline::measure_series(stack.view(), &geom, &seeds, params)
                     .map_err(|e| e.to_string())
             });
-            pipeline::result_row(code, &rec.plan, outcome, params, Some(truth.clone()))
+            (rec, outcome)
+        })
+        .collect();
+    // Every method's images and masks against the reference reconstruction's.
+    let reference = measured.iter().find_map(|(rec, out)| {
+        let stack = rec.stack.as_ref().ok()?;
+        let (seg, vol) = out.as_ref().ok()?;
+        (rec.plan.method == crate::agreement::REFERENCE).then_some((stack, seg, vol))
+    });
+    let fidelity: Vec<Option<Fidelity>> = measured
+        .iter()
+        .map(|(rec, out)| {
+            let (ref_stack, ref_seg, ref_vol) = reference?;
+            let stack = rec.stack.as_ref().ok()?;
+            let (seg, _) = out.as_ref().ok()?;
+            (rec.plan.method != crate::agreement::REFERENCE).then(|| {
+                fidelity::fidelity(
+                    stack.view(),
+                    ref_stack.view(),
+                    seg.masks.view(),
+                    ref_seg.masks.view(),
+                    &geom,
+                    (ref_vol.numbers.ed_frame, ref_vol.numbers.es_frame),
+                )
+            })
+        })
+        .collect();
+    Ok(measured
+        .into_iter()
+        .zip(fidelity)
+        .map(|((rec, outcome), fidelity)| {
+            let mut row =
+                pipeline::result_row(code, &rec.plan, outcome, params, Some(truth.clone()));
+            row.fidelity = fidelity;
+            row
         })
         .collect())
 }

@@ -28,6 +28,7 @@ pub mod agreement_table;
 pub mod caution;
 pub mod demo;
 pub mod fft;
+pub mod fidelity;
 pub mod geometry;
 pub mod io;
 pub mod measure;

@@ -289,6 +289,7 @@ pub fn result_row(
         seed_jitter: None,
         leak_guard,
         slices_counted,
+        fidelity: None,
     }
 }
 

@@ -8,6 +8,7 @@ use serde::{Deserialize, Serialize};
 use crate::acceptance::Criterion;
 use crate::agreement::{self, Acceptance, AgreementRow};
 use crate::caution::CAUTION;
+use crate::fidelity::Fidelity;
 use crate::io::{write_atomic, IoError};
 pub use crate::measure::Numbers;
 use crate::seed_jitter::SeedJitter;
@@ -78,6 +79,10 @@ pub struct RunRow {
     /// acted (empty when failed).
     #[serde(default)]
     pub slices_counted: Vec<FrameExtent>,
+    /// Image quality and mask overlap against the reference reconstruction of the same
+    /// subject (methods other than the reference, where both were measured).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fidelity: Option<Fidelity>,
 }
 
 /// Provenance of one input.

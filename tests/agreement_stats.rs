@@ -426,3 +426,57 @@ fn bad_input_is_refused_with_the_reason() {
     let e = icc_all(&[vec![1.0, 1.0], vec![2.0, 2.0], vec![3.0, 3.0]], 0.95).unwrap_err();
     assert!(e.to_string().contains("zero variance"), "{e}");
 }
+
+/// Fidelity of a reconstruction to itself: NRMSE 0, PSNR undefined (no error), SSIM 1, Dice 1
+/// and Hausdorff 0 (definitions); and a mask shifted by one pixel lowers Dice below 1 and
+/// gives a Hausdorff distance of one pixel (2 mm).
+#[test]
+fn fidelity_of_identical_and_shifted_series() {
+    use cinegauge::fidelity::fidelity;
+    use cinegauge::geometry::Geometry;
+    use ndarray::Array4;
+    let geom = Geometry {
+        row_spacing_mm: 2.0,
+        col_spacing_mm: 2.0,
+        slice_thickness_mm: 8.0,
+        slice_spacing_mm: 10.0,
+        trigger_times_ms: vec![0.0, 40.0],
+        rr_interval_ms: None,
+    };
+    let img = Array4::from_shape_fn((2, 2, 32, 32), |(s, f, r, c)| {
+        ((r as f32 - 16.0).hypot(c as f32 - 16.0) < 6.0 + s as f32 + f as f32) as u8 as f32 + 0.1
+    });
+    let masks = img.mapv(|v| v > 0.5);
+    let same = fidelity(
+        img.view(),
+        img.view(),
+        masks.view(),
+        masks.view(),
+        &geom,
+        (0, 1),
+    );
+    assert_eq!(same.nrmse, Some(0.0));
+    assert_eq!(same.psnr_db, None);
+    close(same.ssim, 1.0, 1e-12, "SSIM");
+    assert_eq!(same.dice_ed, Some(1.0));
+    assert_eq!(same.hd95_es_mm, Some(0.0));
+    let mut shifted = Array4::from_elem(masks.dim(), false);
+    shifted
+        .slice_mut(ndarray::s![.., .., 1.., ..])
+        .assign(&masks.slice(ndarray::s![.., .., ..31, ..]));
+    let moved = fidelity(
+        img.view(),
+        img.view(),
+        shifted.view(),
+        masks.view(),
+        &geom,
+        (0, 1),
+    );
+    assert!(moved.dice_ed.unwrap() < 1.0);
+    close(
+        moved.hd95_ed_mm.unwrap(),
+        2.0,
+        1e-12,
+        "HD95 of a one-pixel shift",
+    );
+}
