@@ -12,6 +12,7 @@ use crate::stats::bland_altman::{bland_altman, Options};
 use crate::stats::concordance::lin_ccc;
 use crate::stats::icc::icc_all;
 use crate::stats::paired::{paired_t, wilcoxon};
+use crate::stats::sample_size::subjects_for_limits;
 use crate::stats::temporal::{curve_error, rate_change};
 use crate::stats::StatsError;
 
@@ -130,6 +131,11 @@ pub struct Verdict {
     /// Image quality and mask overlap against the reference, each the mean over subjects.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub fidelity: Option<Fidelity>,
+    /// Subjects a confirmatory study would need for the EF limits of agreement to stay within
+    /// the declared EF limits margin with 95 % confidence, at this bias and SD (Bland's
+    /// approximate CI of the limits); `None` when no margin is declared, the statistics are
+    /// missing, or no number of subjects would do.
+    pub subjects_needed: Option<usize>,
 }
 
 /// The highest acceleration at which a method passes.
@@ -416,6 +422,7 @@ pub fn acceptance(runs: &[RunRow], rows: &[AgreementRow], criteria: &[Criterion]
             temporal: temporal(&p),
             seed_floor,
             fidelity: mean_fidelity(&g.runs),
+            subjects_needed: subjects_needed(criteria, mine("ef_pct", "pp")),
         });
     }
     let mut highest: Vec<HighestPassing> = Vec::new();
@@ -448,6 +455,16 @@ pub fn acceptance(runs: &[RunRow], rows: &[AgreementRow], criteria: &[Criterion]
         verdicts,
         highest_passing: highest,
     }
+}
+
+/// Subjects needed for the EF limits to stay within the EF limits criterion's margin.
+fn subjects_needed(criteria: &[Criterion], ef: Option<&AgreementRow>) -> Option<usize> {
+    let margin = criteria
+        .iter()
+        .find(|c| c.quantity == "ef_pct" && c.measure == Measure::LimitsWithin)?
+        .limit;
+    let row = ef?;
+    subjects_for_limits(row.bias?, row.sd_diff?, margin, 0.95, 0.95)
 }
 
 /// Each fidelity figure averaged over the runs that carry it.

@@ -73,11 +73,19 @@ pub struct TableAgreement {
 pub fn analyse(
     columns: &[(String, Vec<f64>)],
     margin: Option<Margin>,
+    percentage: bool,
 ) -> Result<TableAgreement, StatsError> {
     let n = columns.first().map_or(0, |c| c.1.len());
     let pairwise = match columns {
         [(_, a), (_, b)] => {
-            let ba = bland_altman(a, b, Options::default())?;
+            let ba = bland_altman(
+                a,
+                b,
+                Options {
+                    percentage,
+                    ..Options::default()
+                },
+            )?;
             let equivalence = margin
                 .as_ref()
                 .map(|m| tost(a, b, m.value, 0.05))
@@ -138,9 +146,10 @@ impl TableAgreement {
         if let Some(p) = &self.pairwise {
             let ba = &p.bland_altman;
             out += &format!(
-                "\ndifference {} − {} (Bland–Altman)\n  bias          {}\n  SD of diff.   {:.3}\n  lower limit   {}\n  upper limit   {}\n",
+                "\ndifference {} − {}{} (Bland–Altman)\n  bias          {}\n  SD of diff.   {:.3}\n  lower limit   {}\n  upper limit   {}\n",
                 self.columns[0],
                 self.columns[1],
+                if ba.percentage { ", % of the pair's mean" } else { "" },
                 ci(&ba.bias, 3),
                 ba.sd_diff,
                 ci(&ba.loa_lower, 3),

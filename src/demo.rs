@@ -11,6 +11,7 @@ use crate::pipeline::{self, CoilPrep, RunRequest};
 use crate::recon::{self, Params};
 use crate::results::{InputHash, ResultsFile, RunRow};
 use crate::sampling::{Pattern, SamplingSpec};
+use crate::seed_jitter::seed_jitter;
 use crate::segment::SegmentParams;
 
 /// The demo study description, embedded in the binary.
@@ -151,6 +152,9 @@ pub fn coil_prep() -> CoilPrep {
     }
 }
 
+/// Seed offset (px) of the demo's seed-sensitivity floor on the reference runs.
+pub const DEMO_JITTER_PX: usize = 2;
+
 /// Runs the whole chain on one synthetic subject and returns its result rows.
 ///
 /// # Errors
@@ -201,13 +205,29 @@ pub fn run_subject(
             })
         })
         .collect();
+    // The reference's own repeatability floor: its seed moved by 2 px in eight directions.
+    let jitter = reference.map(|(stack, _, vol)| {
+        seed_jitter(
+            stack.view(),
+            &geom,
+            &seeds,
+            &[],
+            params,
+            DEMO_JITTER_PX,
+            &vol.numbers,
+        )
+    });
     Ok(measured
         .into_iter()
         .zip(fidelity)
         .map(|((rec, outcome), fidelity)| {
+            let is_reference = rec.plan.method == crate::agreement::REFERENCE;
             let mut row =
                 pipeline::result_row(code, &rec.plan, outcome, params, Some(truth.clone()));
             row.fidelity = fidelity;
+            if is_reference && row.numbers.is_some() {
+                row.seed_jitter = jitter.clone();
+            }
             row
         })
         .collect())

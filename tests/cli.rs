@@ -188,6 +188,16 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
         }
     }
     assert_eq!(acc["highest_passing"].as_array().unwrap().len(), 4);
+    // The reference runs carry the seed-sensitivity floor, so measured verdicts compare the
+    // EF change with it.
+    assert!(runs
+        .iter()
+        .filter(|r| r["method"] == "reference")
+        .all(|r| r["seed_jitter"]["jitter_px"] == 2));
+    assert!(verdicts
+        .iter()
+        .filter(|vd| vd["subjects"] == 3)
+        .all(|vd| vd["seed_floor"]["floor_pp"].as_f64().is_some()));
     assert!(
         !std::str::from_utf8(&std::fs::read(out.join("results.json")).unwrap())
             .unwrap()
@@ -227,6 +237,9 @@ fn agreement_command_reads_a_table_and_names_bad_cells() {
     assert!(out.contains("bias          -2.118"), "{out}");
     assert!(out.contains("SD of diff.   38.765"), "{out}");
     assert!(out.contains("not for diagnostic use"));
+    // Percentage differences: 100·(a − b)/mean of the pair, said in the heading.
+    let o = cinegauge(&["agreement", p, "--columns", "wright,mini", "--percentage"]);
+    assert!(String::from_utf8_lossy(&o.stdout).contains("% of the pair's mean"));
     let o = cinegauge(&["agreement", p, "--columns", "wright,mini", "--json"]);
     let j: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert!((j["pairwise"]["bland_altman"]["sd_diff"].as_f64().unwrap() - 38.765).abs() < 1e-3);

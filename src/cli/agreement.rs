@@ -36,6 +36,10 @@ pub struct AgreementArgs {
     /// Declared margin for the difference of the first two columns, e.g. `ef_pct=5`.
     #[arg(long, value_name = "QUANTITY=VALUE")]
     pub margin: Option<String>,
+    /// Bland–Altman on percentage differences (100·(A − B) / mean of the pair), for
+    /// quantities whose spread grows with their size.
+    #[arg(long)]
+    pub percentage: bool,
     /// Machine-readable JSON on stdout instead of the text table.
     #[arg(long)]
     pub json: bool,
@@ -80,7 +84,7 @@ pub fn run(a: AgreementArgs) -> anyhow::Result<()> {
     );
     let values = read_columns(&a.table, &a.columns)?;
     let columns: Vec<(String, Vec<f64>)> = a.columns.iter().cloned().zip(values).collect();
-    let result = analyse(&columns, margin)
+    let result = analyse(&columns, margin, a.percentage)
         .with_context(|| format!("{}: columns {}", a.table.display(), a.columns.join(", ")))?;
     if a.json {
         println!("{}", serde_json::to_string_pretty(&result)?);
