@@ -203,6 +203,38 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
             .unwrap()
             .contains("NaN")
     );
+
+    // `report` rebuilds the PDF from results.json: the same bytes as the demo wrote (fixed
+    // font names, no clock), again on a second run.
+    let again = tmp.path().join("again.pdf");
+    for _ in 0..2 {
+        let o = cinegauge(&[
+            "report",
+            out.join("results.json").to_str().unwrap(),
+            "--pdf",
+            again.to_str().unwrap(),
+        ]);
+        assert!(o.status.success(), "{}", text(&o));
+        assert!(std::fs::read(&again).unwrap() == pdf, "report bytes differ");
+    }
+    // Where poppler's pdftotext is installed (.ci/run installs it), the text layer holds the
+    // caution and every measured EF with one decimal.
+    if let Ok(o) = std::process::Command::new("pdftotext")
+        .arg(out.join("report.pdf"))
+        .arg("-")
+        .output()
+    {
+        let t = String::from_utf8_lossy(&o.stdout);
+        assert!(
+            t.contains("not for diagnostic use"),
+            "caution in the PDF text"
+        );
+        assert!(t.contains("Decision summary") && t.contains("EF bias within ±2 pp"));
+        for r in runs.iter().filter(|r| r["status"] == "ok") {
+            let ef = format!("{:.1}", r["ef_pct"].as_f64().unwrap());
+            assert!(t.contains(&ef), "EF {ef} not in the report");
+        }
+    }
 }
 
 /// `agreement` on the Bland & Altman 1986 peak-flow table (Table 1, first readings): the

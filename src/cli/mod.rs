@@ -7,6 +7,7 @@ mod listing;
 mod measure;
 mod progress;
 mod reconstruct;
+mod report;
 mod simulate;
 mod suggest;
 
@@ -70,6 +71,8 @@ pub enum Command {
     SuggestSeeds(suggest::SuggestArgs),
     /// Agreement statistics on a CSV table of paired measurements (Bland–Altman, ICC, CCC, tests).
     Agreement(agreement::AgreementArgs),
+    /// Rebuild the sign-off PDF from a results file.
+    Report(report::ReportArgs),
 }
 
 /// Runs the parsed command.
@@ -88,5 +91,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Inspect(a) => inspect::run(a),
         Command::SuggestSeeds(a) => suggest::run(a, quiet),
         Command::Agreement(a) => agreement::run(a),
+        Command::Report(a) => report::run(a, quiet),
     }
 }

@@ -2,8 +2,7 @@
 //! top-left corner of an A4 page (PDF itself counts from the bottom-left).
 
 use printpdf::{
-    BuiltinFont, Color, Greyscale, Line, LinePoint, Mm, Op, PaintMode, PdfFontHandle, Point, Pt,
-    Rect, Rgb, TextItem,
+    Color, Greyscale, Line, LinePoint, Mm, Op, PaintMode, Point, Pt, Rect, Rgb, TextItem,
 };
 
 /// A4 width in mm.
@@ -56,10 +55,6 @@ pub fn grey(v: f32) -> Color {
 impl Page {
     /// Text with its baseline at `y_mm` from the top.
     pub fn text(&mut self, x_mm: f32, y_mm: f32, size_pt: f32, weight: Weight, text: &str) {
-        let font = match weight {
-            Weight::Regular => BuiltinFont::Helvetica,
-            Weight::Bold => BuiltinFont::HelveticaBold,
-        };
         self.ops.extend([
             Op::StartTextSection,
             Op::SetFillColor { col: grey(0.0) },
@@ -67,7 +62,7 @@ impl Page {
                 pos: point(x_mm, y_mm),
             },
             Op::SetFont {
-                font: PdfFontHandle::Builtin(font),
+                font: super::fonts::handle(weight),
                 size: Pt(size_pt),
             },
             Op::ShowText {
@@ -77,7 +72,7 @@ impl Page {
         ]);
     }
 
-    /// Text right-aligned at `x_right_mm` (width estimated from Helvetica's average advance).
+    /// Text right-aligned at `x_right_mm` (width from the font's advance widths).
     pub fn text_right(
         &mut self,
         x_right_mm: f32,
@@ -86,7 +81,7 @@ impl Page {
         weight: Weight,
         text: &str,
     ) {
-        let w = text_width_mm(text, size_pt);
+        let w = super::fonts::width_mm(text, size_pt, weight);
         self.text(x_right_mm - w, y_mm, size_pt, weight, text);
     }
 
@@ -125,18 +120,4 @@ impl Page {
             },
         });
     }
-}
-
-/// Approximate width of Helvetica text: digits and most letters advance about 0.55 em.
-pub fn text_width_mm(text: &str, size_pt: f32) -> f32 {
-    let em_mm = size_pt * 25.4 / 72.0;
-    text.chars()
-        .map(|c| match c {
-            'i' | 'l' | 'j' | '.' | ',' | ':' | ';' | '|' | '\'' | ' ' => 0.28,
-            'm' | 'w' | 'M' | 'W' => 0.85,
-            c if c.is_uppercase() => 0.68,
-            _ => 0.55,
-        })
-        .sum::<f32>()
-        * em_mm
 }

@@ -1,6 +1,8 @@
 //! The PDF report: what was compared, the clinical numbers of every run, and the caution.
 
 mod canvas;
+mod decision;
+mod fonts;
 
 use std::path::Path;
 
@@ -9,7 +11,7 @@ use printpdf::{Mm, PdfDocument, PdfPage, PdfSaveOptions};
 use crate::caution::CAUTION;
 use crate::io::{write_atomic, IoError};
 use crate::results::{ResultsFile, RunStatus};
-use canvas::{grey, rgb, text_width_mm, Page, Weight, PAGE_H, PAGE_W};
+use canvas::{grey, rgb, Page, Weight, PAGE_H, PAGE_W};
 
 const MARGIN: f32 = 16.0;
 const ROW_H: f32 = 5.2;
@@ -74,32 +76,36 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
         y += 4.3;
     }
     y += 3.0;
+    decision::decision_summary(&mut page, results, y);
+    pages.push(page);
+    page = Page::default();
+    y = MARGIN + 2.0;
     y = ef_grid(&mut page, results, y);
-    y += 4.0;
+    y += 7.0;
     page.text(MARGIN, y, 11.0, Weight::Bold, "Clinical numbers per run");
     y += 3.0;
 
     let cols: [(&str, f32, bool); 11] = [
-        ("Subject", 16.0, false),
-        ("Method", 22.0, false),
-        ("Pattern", 20.0, false),
-        ("R nom/eff", 16.0, true),
-        ("EDV ml", 14.0, true),
-        ("ESV ml", 14.0, true),
-        ("SV ml", 14.0, true),
-        ("EF %", 12.0, true),
-        ("ED/ES", 12.0, true),
-        ("Truth EF %", 17.0, true),
-        ("dEF pp", 13.0, true),
+        ("Subject", 14.0, false),
+        ("Method", 26.0, false),
+        ("Pattern", 25.0, false),
+        ("R nom/eff", 17.0, true),
+        ("EDV ml", 13.0, true),
+        ("ESV ml", 13.0, true),
+        ("SV ml", 12.0, true),
+        ("EF %", 11.0, true),
+        ("ED/ES", 11.0, true),
+        ("Truth EF %", 18.0, true),
+        ("ΔEF pp", 14.0, true),
     ];
     let header = |page: &mut Page, y: f32| {
         page.fill_rect(MARGIN, y, PAGE_W - 2.0 * MARGIN, ROW_H + 1.0, grey(0.88));
         let mut x = MARGIN + 1.0;
         for (name, w, right) in cols {
             if right {
-                page.text_right(x + w - 1.0, y + 4.2, 8.0, Weight::Bold, name);
+                page.text_right(x + w - 1.0, y + 4.2, 7.5, Weight::Bold, name);
             } else {
-                page.text(x, y + 4.2, 8.0, Weight::Bold, name);
+                page.text(x, y + 4.2, 7.5, Weight::Bold, name);
             }
             x += w;
         }
@@ -140,9 +146,9 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
         let mut x = MARGIN + 1.0;
         for ((_, w, right), cell) in cols.iter().zip(cells.iter()) {
             if *right {
-                page.text_right(x + w - 1.0, y + 3.8, 8.0, Weight::Regular, cell);
+                page.text_right(x + w - 1.0, y + 3.8, 7.5, Weight::Regular, cell);
             } else {
-                page.text(x, y + 3.8, 8.0, Weight::Regular, cell);
+                page.text(x, y + 3.8, 7.5, Weight::Regular, cell);
             }
             x += w;
         }
@@ -175,7 +181,7 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
         y,
         7.5,
         Weight::Regular,
-        "dEF: EF of the run minus truth EF, in percentage points (pp).",
+        "ΔEF: EF of the run minus truth EF, in percentage points (pp).",
     );
     y += 6.0;
     for (title, list) in [
@@ -208,6 +214,7 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
     pages.push(page);
     let total = pages.len();
     let mut doc = PdfDocument::new(&format!("cinegauge report {}", results.study));
+    fonts::register(&mut doc);
     let pdf_pages: Vec<PdfPage> = pages
         .into_iter()
         .enumerate()
@@ -370,7 +377,7 @@ fn footer(page: &mut Page, n: usize, total: usize) {
     );
     let label = format!("page {n} of {total}");
     page.text(
-        PAGE_W - MARGIN - text_width_mm(&label, 7.0),
+        PAGE_W - MARGIN - fonts::width_mm(&label, 7.0, Weight::Regular),
         y,
         7.0,
         Weight::Regular,
