@@ -217,6 +217,45 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
         assert!(o.status.success(), "{}", text(&o));
         assert!(std::fs::read(&again).unwrap() == pdf, "report bytes differ");
     }
+    // A thin results file — one subject, one R, one failed run, no verdicts — still gives a
+    // report that says what is missing instead of failing or drawing empty axes.
+    let mut thin = v.clone();
+    thin["runs"] = serde_json::Value::Array(
+        runs.iter()
+            .filter(|r| {
+                r["subject"] == "TW-01" && (r["accel_nominal"] == 1.0 || r["accel_nominal"] == 12.0)
+            })
+            .filter(|r| {
+                r["method"] == "reference"
+                    || r["method"] == "cg-sense"
+                    || r["method"] == "zero-filled"
+            })
+            .cloned()
+            .collect(),
+    );
+    thin.as_object_mut().unwrap().remove("agreement");
+    thin.as_object_mut().unwrap().remove("acceptance");
+    let thin_json = tmp.path().join("thin.json");
+    std::fs::write(&thin_json, serde_json::to_vec(&thin).unwrap()).unwrap();
+    let thin_pdf = tmp.path().join("thin.pdf");
+    let o = cinegauge(&[
+        "report",
+        thin_json.to_str().unwrap(),
+        "--pdf",
+        thin_pdf.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", text(&o));
+    assert!(text(&o).contains("default criteria"));
+    if let Ok(o) = std::process::Command::new("pdftotext")
+        .arg(&thin_pdf)
+        .arg("-")
+        .output()
+    {
+        let t = String::from_utf8_lossy(&o.stdout);
+        assert!(t.contains("too few"), "verdict says too few subjects: {t}");
+        assert!(t.contains("fewer than 3 subjects measured"), "{t}");
+        assert!(t.contains("not measured at this R: zero-filled"), "{t}");
+    }
     // Where poppler's pdftotext is installed (.ci/run installs it), the text layer holds the
     // caution and every measured EF with one decimal.
     if let Ok(o) = std::process::Command::new("pdftotext")

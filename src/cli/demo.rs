@@ -89,7 +89,7 @@ pub fn run(a: DemoArgs, quiet: bool) -> anyhow::Result<()> {
                     h.pattern,
                     h.accel_nominal
                         .map(|r| format!("passes up to R = {r}"))
-                        .unwrap_or_else(|| "fails at the lowest R tested".into())
+                        .unwrap_or_else(|| "the lowest R tested does not pass".into())
                 );
             }
         }

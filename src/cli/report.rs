@@ -26,7 +26,14 @@ pub struct ReportArgs {
 }
 
 pub fn run(a: ReportArgs, quiet: bool) -> anyhow::Result<()> {
-    let results = ResultsFile::read(&a.results)?;
+    let mut results = ResultsFile::read(&a.results)?;
+    if results.acceptance.is_none() && results.runs.iter().any(|r| r.method != "reference") {
+        results.compare(&cinegauge::acceptance::default_criteria());
+        say(
+            quiet,
+            "warning: the results file holds no verdicts; judged here against the default criteria",
+        );
+    }
     let pdf = a.pdf.unwrap_or_else(|| {
         a.results
             .parent()

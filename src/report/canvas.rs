@@ -2,7 +2,8 @@
 //! top-left corner of an A4 page (PDF itself counts from the bottom-left).
 
 use printpdf::{
-    Color, Greyscale, Line, LinePoint, Mm, Op, PaintMode, Point, Pt, Rect, Rgb, TextItem,
+    Color, Greyscale, Line, LineDashPattern, LinePoint, Mm, Op, PaintMode, Point, Polygon,
+    PolygonRing, Pt, Rect, Rgb, TextItem, WindingOrder,
 };
 
 /// A4 width in mm.
@@ -32,6 +33,17 @@ fn pt(mm: f32) -> Pt {
 
 fn point(x_mm: f32, y_top_mm: f32) -> Point {
     Point::new(Mm(x_mm), Mm(PAGE_H - y_top_mm))
+}
+
+/// Straight-segment path points from page positions (mm from the top-left).
+fn line_points(points: &[(f32, f32)]) -> Vec<LinePoint> {
+    points
+        .iter()
+        .map(|&(x, y)| LinePoint {
+            p: point(x, y),
+            bezier: false,
+        })
+        .collect()
 }
 
 /// An RGB colour from 0–1 components.
@@ -119,5 +131,58 @@ impl Page {
                 is_closed: false,
             },
         });
+    }
+
+    /// An open polyline, solid or dashed (`dash`: on/off lengths in pt).
+    pub fn polyline(&mut self, points: &[(f32, f32)], width_pt: f32, col: Color, dash: &[f32]) {
+        if points.len() < 2 {
+            return;
+        }
+        self.ops.push(Op::SetOutlineColor { col });
+        self.ops.push(Op::SetOutlineThickness { pt: Pt(width_pt) });
+        self.ops.push(Op::SetLineDashPattern {
+            dash: if dash.is_empty() {
+                LineDashPattern::solid()
+            } else {
+                LineDashPattern::new(0.0, dash)
+            },
+        });
+        self.ops.push(Op::DrawLine {
+            line: Line {
+                points: line_points(points),
+                is_closed: false,
+            },
+        });
+        self.ops.push(Op::SetLineDashPattern {
+            dash: LineDashPattern::solid(),
+        });
+    }
+
+    /// A filled polygon.
+    pub fn fill_polygon(&mut self, points: &[(f32, f32)], col: Color) {
+        if points.len() < 3 {
+            return;
+        }
+        self.ops.push(Op::SetFillColor { col });
+        self.ops.push(Op::DrawPolygon {
+            polygon: Polygon {
+                rings: vec![PolygonRing {
+                    points: line_points(points),
+                }],
+                mode: PaintMode::Fill,
+                winding_order: WindingOrder::NonZero,
+            },
+        });
+    }
+
+    /// A rectangle outline.
+    pub fn stroke_rect(&mut self, x_mm: f32, y_mm: f32, w_mm: f32, h_mm: f32, width_pt: f32) {
+        let (x1, y1) = (x_mm + w_mm, y_mm + h_mm);
+        self.polyline(
+            &[(x_mm, y_mm), (x1, y_mm), (x1, y1), (x_mm, y1), (x_mm, y_mm)],
+            width_pt,
+            grey(0.0),
+            &[],
+        );
     }
 }

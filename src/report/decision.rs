@@ -131,7 +131,7 @@ pub fn decision_summary(page: &mut Page, results: &ResultsFile, mut y: f32) -> f
                 trim_num(r)
             ),
             None => format!(
-                "{} ({}): none — it fails at the lowest R tested",
+                "{} ({}): none — the lowest R tested does not pass",
                 h.method, h.pattern
             ),
         };

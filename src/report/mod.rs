@@ -2,7 +2,9 @@
 
 mod canvas;
 mod decision;
+mod figures;
 mod fonts;
+mod plot;
 
 use std::path::Path;
 
@@ -78,6 +80,10 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
     y += 3.0;
     decision::decision_summary(&mut page, results, y);
     pages.push(page);
+    pages.extend(figures::accel_page(results));
+    pages.extend(figures::bland_altman_pages(results));
+    pages.extend(figures::curve_pages(results));
+    pages.extend(figures::fidelity_page(results));
     page = Page::default();
     y = MARGIN + 2.0;
     y = ef_grid(&mut page, results, y);
