@@ -572,6 +572,8 @@ mod tests {
             leak_guard: Vec::new(),
             slices_counted: Vec::new(),
             fidelity: None,
+            parameters: Default::default(),
+            seeds: Vec::new(),
         }
     }
 

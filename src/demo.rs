@@ -225,6 +225,12 @@ pub fn run_subject(
             let mut row =
                 pipeline::result_row(code, &rec.plan, outcome, params, Some(truth.clone()));
             row.fidelity = fidelity;
+            row.seeds = seeds.to_vec();
+            if let Some(req) = runs.iter().find(|q| {
+                q.method.id() == rec.plan.method && q.sampling.accel == rec.plan.accel_nominal
+            }) {
+                row.parameters = req.params.iter().map(|(k, v)| (k.to_string(), v)).collect();
+            }
             if is_reference && row.numbers.is_some() {
                 row.seed_jitter = jitter.clone();
             }

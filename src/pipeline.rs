@@ -290,6 +290,8 @@ pub fn result_row(
         leak_guard,
         slices_counted,
         fidelity: None,
+        parameters: Default::default(),
+        seeds: Vec::new(),
     }
 }
 

@@ -1,6 +1,7 @@
 //! Machine-readable results: one row per subject × method × pattern × R, as JSON and CSV
 //! with the same columns (DESIGN.md vocabulary). Arrays in CSV cells are JSON text.
 
+use std::collections::BTreeMap;
 use std::path::Path;
 
 use serde::{Deserialize, Serialize};
@@ -12,7 +13,7 @@ use crate::fidelity::Fidelity;
 use crate::io::{write_atomic, IoError};
 pub use crate::measure::Numbers;
 use crate::seed_jitter::SeedJitter;
-use crate::segment::{FrameExtent, GuardEvent};
+use crate::segment::{FrameExtent, GuardEvent, Seed};
 
 /// Whether a run produced numbers.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -83,6 +84,12 @@ pub struct RunRow {
     /// subject (methods other than the reference, where both were measured).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub fidelity: Option<Fidelity>,
+    /// Method parameters used (name → value).
+    #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
+    pub parameters: BTreeMap<String, f64>,
+    /// The LV seeds the series was segmented from.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub seeds: Vec<Seed>,
 }
 
 /// Provenance of one input.

@@ -256,6 +256,41 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
         assert!(t.contains("fewer than 3 subjects measured"), "{t}");
         assert!(t.contains("not measured at this R: zero-filled"), "{t}");
     }
+    // Where poppler's pdftoppm is installed, every page rendered (greyscale, 30 dpi) has ink
+    // above its footer: no blank pages.
+    let pages_dir = tmp.path().join("pages");
+    std::fs::create_dir_all(&pages_dir).unwrap();
+    if std::process::Command::new("pdftoppm")
+        .args(["-gray", "-r", "30"])
+        .arg(out.join("report.pdf"))
+        .arg(pages_dir.join("p"))
+        .status()
+        .is_ok_and(|s| s.success())
+    {
+        let mut pages: Vec<_> = std::fs::read_dir(&pages_dir)
+            .unwrap()
+            .map(|e| e.unwrap().path())
+            .collect();
+        pages.sort();
+        assert!(pages.len() >= 6, "{} pages", pages.len());
+        for p in pages {
+            let bytes = std::fs::read(&p).unwrap();
+            // Binary PGM: "P5", width, height, maxval, then one byte per pixel.
+            let header: Vec<&[u8]> = bytes.splitn(5, |b| b.is_ascii_whitespace()).collect();
+            let (w, h): (usize, usize) = (
+                std::str::from_utf8(header[1]).unwrap().parse().unwrap(),
+                std::str::from_utf8(header[2]).unwrap().parse().unwrap(),
+            );
+            let pixels = &bytes[bytes.len() - w * h..];
+            let body = &pixels[..w * h * 85 / 100];
+            let ink = body.iter().filter(|&&v| v < 160).count();
+            assert!(
+                ink > w * h / 200,
+                "{}: nearly blank ({ink} dark pixels)",
+                p.display()
+            );
+        }
+    }
     // Where poppler's pdftotext is installed (.ci/run installs it), the text layer holds the
     // caution and every measured EF with one decimal.
     if let Ok(o) = std::process::Command::new("pdftotext")

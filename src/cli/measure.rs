@@ -138,6 +138,7 @@ pub fn run(a: MeasureArgs, quiet: bool) -> anyhow::Result<()> {
     });
     let mut row = pipeline::result_row(&a.subject, &plan, Ok((seg, vol)), &params, None);
     row.seed_jitter = jitter;
+    row.seeds = seed_list.clone();
     let inputs = vec![
         InputHash {
             label: "images".into(),

@@ -5,6 +5,7 @@ mod decision;
 mod figures;
 mod fonts;
 mod plot;
+mod provenance;
 
 use std::path::Path;
 
@@ -218,6 +219,7 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
         y += 3.0;
     }
     pages.push(page);
+    pages.extend(provenance::provenance_pages(results));
     let total = pages.len();
     let mut doc = PdfDocument::new(&format!("cinegauge report {}", results.study));
     fonts::register(&mut doc);
