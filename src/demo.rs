@@ -6,6 +6,7 @@
 use serde::Deserialize;
 
 use crate::fidelity::{self, Fidelity};
+use crate::panels;
 use crate::phantom::{Phantom, PhantomSpec};
 use crate::pipeline::{self, CoilPrep, RunRequest};
 use crate::recon::{self, Params};
@@ -13,6 +14,7 @@ use crate::results::{InputHash, ResultsFile, RunRow};
 use crate::sampling::{Pattern, SamplingSpec};
 use crate::seed_jitter::seed_jitter;
 use crate::segment::SegmentParams;
+use std::path::Path;
 
 /// The demo study description, embedded in the binary.
 pub const DEMO_TOML: &str = include_str!("../demo-studies/tidewater.toml");
@@ -165,6 +167,7 @@ pub fn run_subject(
     runs: &[RunRequest],
     prep: &CoilPrep,
     params: &SegmentParams,
+    panels_dir: Option<&Path>,
 ) -> Result<Vec<RunRow>, anyhow::Error> {
     let ph = Phantom::new(spec.clone())?;
     let seeds = [pipeline::phantom_seed(&ph)];
@@ -205,6 +208,27 @@ pub fn run_subject(
             })
         })
         .collect();
+    if let (Some(dir), Some((ref_stack, ref_seg, ref_vol))) = (panels_dir, reference) {
+        let s0 = seeds[0].slice;
+        let phases = (ref_vol.numbers.ed_frame, ref_vol.numbers.es_frame);
+        let crop = panels::crop_box(ref_seg.masks.view(), s0, phases.0);
+        let window = panels::window(ref_stack.view(), s0);
+        for (rec, out) in &measured {
+            if let (Ok(stack), Ok((seg, _))) = (&rec.stack, out) {
+                let p = &rec.plan;
+                let path = panels::file(dir, code, &p.method, &p.pattern, p.accel_nominal);
+                panels::write_pair(
+                    &path,
+                    stack.view(),
+                    seg.masks.view(),
+                    s0,
+                    phases,
+                    &crop,
+                    window,
+                )?;
+            }
+        }
+    }
     // The reference's own repeatability floor: its seed moved by 2 px in eight directions.
     let jitter = reference.map(|(stack, _, vol)| {
         seed_jitter(
@@ -245,6 +269,7 @@ pub fn run_subject(
 /// As [`run_subject`].
 pub fn run(
     rng_seed: u64,
+    panels_dir: Option<&Path>,
     progress: &dyn Fn(usize, usize, &str),
 ) -> Result<ResultsFile, anyhow::Error> {
     let subjects = subjects(rng_seed);
@@ -259,7 +284,9 @@ pub fn run(
             label: format!("{} (synthetic phantom parameters)", s.code),
             sha256: pipeline::sha256_of(&s.spec),
         });
-        rows.extend(run_subject(&s.code, &s.spec, &runs, &prep, &params)?);
+        rows.extend(run_subject(
+            &s.code, &s.spec, &runs, &prep, &params, panels_dir,
+        )?);
     }
     progress(subjects.len(), subjects.len(), "done");
     let mut file = ResultsFile::new(&study(), inputs, rows);

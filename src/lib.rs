@@ -33,6 +33,7 @@ pub mod geometry;
 pub mod io;
 pub mod measure;
 pub mod normals;
+pub mod panels;
 pub mod phantom;
 pub mod pipeline;
 pub mod recon;

@@ -204,6 +204,12 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
             .contains("NaN")
     );
 
+    // One ED | ES panel pair per measured run, for the report's image pages.
+    let ok_runs = runs.iter().filter(|r| r["status"] == "ok").count();
+    assert_eq!(
+        std::fs::read_dir(out.join("panels")).unwrap().count(),
+        ok_runs
+    );
     // `report` rebuilds the PDF from results.json: the same bytes as the demo wrote (fixed
     // font names, no clock), again on a second run.
     let again = tmp.path().join("again.pdf");

@@ -29,7 +29,9 @@ pub fn run(a: DemoArgs, quiet: bool) -> anyhow::Result<()> {
     let started = std::time::Instant::now();
     io::ensure_dir(&a.out).context("preparing the output folder")?;
     let prog = Progress::new("demo", demo::subjects(a.rng_seed).len() as u64, quiet);
-    let results = demo::run(a.rng_seed, &|i, n, code| {
+    let panels = a.out.join("panels");
+    io::ensure_dir(&panels).context("preparing the panels folder")?;
+    let results = demo::run(a.rng_seed, Some(&panels), &|i, n, code| {
         prog.step(i as u64, n as u64, code)
     })
     .context("running the demo study")?;
@@ -38,7 +40,7 @@ pub fn run(a: DemoArgs, quiet: bool) -> anyhow::Result<()> {
         .write(&a.out, "results")
         .context("writing results")?;
     let pdf = a.pdf.unwrap_or_else(|| a.out.join("report.pdf"));
-    report::write(&results, &pdf).context("writing the report")?;
+    report::write(&results, &pdf, Some(&panels)).context("writing the report")?;
     if !quiet {
         for r in &results.runs {
             let line = match &r.numbers {

@@ -40,7 +40,12 @@ pub fn run(a: ReportArgs, quiet: bool) -> anyhow::Result<()> {
             .map(|d| d.join("report.pdf"))
             .unwrap_or_else(|| PathBuf::from("report.pdf"))
     });
-    report::write(&results, &pdf).context("writing the report")?;
+    let panels = a
+        .results
+        .parent()
+        .map(|d| d.join("panels"))
+        .filter(|d| d.is_dir());
+    report::write(&results, &pdf, panels.as_deref()).context("writing the report")?;
     say(
         quiet,
         &format!(

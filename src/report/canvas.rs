@@ -185,4 +185,28 @@ impl Page {
             &[],
         );
     }
+
+    /// A raster image (already added to the document as `id`), `px_w` pixels wide, drawn
+    /// `w_mm` wide with its top-left corner at `(x, y)`.
+    pub fn image(
+        &mut self,
+        id: printpdf::XObjectId,
+        x_mm: f32,
+        y_mm: f32,
+        w_mm: f32,
+        px_w: usize,
+        px_h: usize,
+    ) {
+        let dpi = px_w as f32 / (w_mm / 25.4);
+        let h_mm = w_mm * px_h as f32 / px_w as f32;
+        self.ops.push(Op::UseXobject {
+            id,
+            transform: printpdf::XObjectTransform {
+                translate_x: Some(pt(x_mm)),
+                translate_y: Some(pt(PAGE_H - y_mm - h_mm)),
+                dpi: Some(dpi),
+                ..Default::default()
+            },
+        });
+    }
 }

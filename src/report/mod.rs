@@ -4,6 +4,7 @@ mod canvas;
 mod decision;
 mod figures;
 mod fonts;
+mod images;
 mod plot;
 mod provenance;
 
@@ -19,8 +20,11 @@ use canvas::{grey, rgb, Page, Weight, PAGE_H, PAGE_W};
 const MARGIN: f32 = 16.0;
 const ROW_H: f32 = 5.2;
 
-/// Builds the report's PDF bytes from a results file. Deterministic: no clock is read.
-pub fn render(results: &ResultsFile) -> Vec<u8> {
+/// Builds the report's PDF bytes from a results file, with the image panels from `panels`
+/// when given. Deterministic: no clock is read.
+pub fn render(results: &ResultsFile, panels: Option<&Path>) -> Vec<u8> {
+    let mut doc = PdfDocument::new(&format!("cinegauge report {}", results.study));
+    fonts::register(&mut doc);
     let mut pages = vec![];
     let mut page = Page::default();
     let mut y = MARGIN + 4.0;
@@ -84,6 +88,9 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
     pages.extend(figures::accel_page(results));
     pages.extend(figures::bland_altman_pages(results));
     pages.extend(figures::curve_pages(results));
+    if let Some(dir) = panels {
+        pages.extend(images::image_pages(results, dir, &mut doc));
+    }
     pages.extend(figures::fidelity_page(results));
     page = Page::default();
     y = MARGIN + 2.0;
@@ -221,8 +228,6 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
     pages.push(page);
     pages.extend(provenance::provenance_pages(results));
     let total = pages.len();
-    let mut doc = PdfDocument::new(&format!("cinegauge report {}", results.study));
-    fonts::register(&mut doc);
     let pdf_pages: Vec<PdfPage> = pages
         .into_iter()
         .enumerate()
@@ -240,8 +245,8 @@ pub fn render(results: &ResultsFile) -> Vec<u8> {
 ///
 /// # Errors
 /// [`IoError`] naming the file.
-pub fn write(results: &ResultsFile, path: &Path) -> Result<(), IoError> {
-    write_atomic(path, &render(results))
+pub fn write(results: &ResultsFile, path: &Path, panels: Option<&Path>) -> Result<(), IoError> {
+    write_atomic(path, &render(results, panels))
 }
 
 /// A compact grid of EF per subject and method (rows) and acceleration (columns), with the
