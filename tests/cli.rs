@@ -7,8 +7,11 @@ use cinegauge::tolerances::{EDV_REL_FULLY_SAMPLED, EF_PP_FULLY_SAMPLED};
 
 mod common;
 
+/// Runs the binary with `SOURCE_DATE_EPOCH` fixed (2025-12-02 UTC), so reports carry a fixed
+/// date and compare byte for byte.
 fn cinegauge(args: &[&str]) -> Output {
     Command::new(env!("CARGO_BIN_EXE_cinegauge"))
+        .env("SOURCE_DATE_EPOCH", "1764633600")
         .args(args)
         .output()
         .expect("binary runs")
@@ -310,6 +313,10 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
             "caution in the PDF text"
         );
         assert!(t.contains("Decision summary") && t.contains("EF bias within ±2 pp"));
+        assert!(
+            t.contains("report of 2025-12-02"),
+            "date from SOURCE_DATE_EPOCH"
+        );
         for r in runs.iter().filter(|r| r["status"] == "ok") {
             let ef = format!("{:.1}", r["ef_pct"].as_f64().unwrap());
             assert!(t.contains(&ef), "EF {ef} not in the report");

@@ -202,25 +202,77 @@ pub fn accel_page(results: &ResultsFile) -> Option<Page> {
     Some(page)
 }
 
-/// Pairs (mean, difference) of EF for one method and R against the same subjects' reference.
-fn ef_pairs(runs: &[RunRow], method: &str, pattern: &str, r: f64) -> Vec<(f64, f64)> {
+/// Which quantity a Bland–Altman grid shows.
+#[derive(Debug, Clone, Copy)]
+pub struct BaQuantity {
+    /// Quantity key.
+    pub quantity: &'static str,
+    /// Unit of the agreement rows used (`pp`, or `pct` for percentage differences).
+    pub unit: &'static str,
+    /// Display name.
+    pub name: &'static str,
+    /// Unit of the measurement itself (x axis).
+    pub value_unit: &'static str,
+}
+
+/// EF in pp, EDV and ESV as percentages of the pair's mean.
+pub const BA_QUANTITIES: [BaQuantity; 3] = [
+    BaQuantity {
+        quantity: "ef_pct",
+        unit: "pp",
+        name: "EF",
+        value_unit: "%",
+    },
+    BaQuantity {
+        quantity: "edv_ml",
+        unit: "pct",
+        name: "EDV",
+        value_unit: "ml",
+    },
+    BaQuantity {
+        quantity: "esv_ml",
+        unit: "pct",
+        name: "ESV",
+        value_unit: "ml",
+    },
+];
+
+fn quantity_of(n: &crate::measure::Numbers, q: &str) -> f64 {
+    match q {
+        "ef_pct" => n.ef_pct,
+        "edv_ml" => n.edv_ml,
+        "esv_ml" => n.esv_ml,
+        _ => n.sv_ml,
+    }
+}
+
+/// Pairs (mean, difference) of one quantity for one method and R against the same subjects'
+/// reference; differences in percent of the pair's mean for `pct`.
+fn pairs(runs: &[RunRow], q: BaQuantity, method: &str, pattern: &str, r: f64) -> Vec<(f64, f64)> {
     runs.iter()
         .filter(|x| x.method == method && x.pattern == pattern && x.accel_nominal == r)
         .filter_map(|x| {
-            let m = x.numbers.as_ref()?.ef_pct;
+            let m = quantity_of(x.numbers.as_ref()?, q.quantity);
             let reference = runs
                 .iter()
                 .find(|y| y.subject == x.subject && y.method == REFERENCE)?
                 .numbers
-                .as_ref()?
-                .ef_pct;
-            Some((0.5 * (m + reference), m - reference))
+                .as_ref()
+                .map(|n| quantity_of(n, q.quantity))?;
+            let mean = 0.5 * (m + reference);
+            let d = if q.unit == "pct" {
+                100.0 * (m - reference) / mean
+            } else {
+                m - reference
+            };
+            (mean != 0.0 || q.unit != "pct").then_some((mean, d))
         })
         .collect()
 }
 
-/// Pages: Bland–Altman plots of EF, one small panel per method (rows) and R (columns).
-pub fn bland_altman_pages(results: &ResultsFile) -> Vec<Page> {
+/// Pages: Bland–Altman plots of one quantity, one small panel per method (rows) and R
+/// (columns).
+pub fn bland_altman_pages(results: &ResultsFile, q: BaQuantity) -> Vec<Page> {
     let names = methods(results);
     let rs = accels(results);
     if names.is_empty() || rs.is_empty() {
@@ -230,15 +282,26 @@ pub fn bland_altman_pages(results: &ResultsFile) -> Vec<Page> {
         .iter()
         .flat_map(|(m, p)| {
             rs.iter()
-                .flat_map(move |r| ef_pairs(&results.runs, m, p, *r))
+                .flat_map(move |r| pairs(&results.runs, q, m, p, *r))
         })
         .collect();
-    let lim = margin(results, "ef_pct", "pp", Measure::LimitsWithin);
+    // The margin drawn: the limits' margin where declared, else the bias margin.
+    let (lim, lim_dash): (Option<f64>, &'static [f32]) =
+        match margin(results, q.quantity, q.unit, Measure::LimitsWithin) {
+            Some(l) => (Some(l), &[3.0, 2.0]),
+            None => (
+                margin(results, q.quantity, q.unit, Measure::AbsBias),
+                &[0.8, 1.5],
+            ),
+        };
     let (xlo, xhi) = all.iter().fold((f64::MAX, f64::MIN), |(l, h), (m, _)| {
         (l.min(*m), h.max(*m))
     });
     let (xlo, xhi) = if xlo < xhi {
-        (xlo - 3.0, xhi + 3.0)
+        let pad = 0.08 * (xhi - xlo);
+        (xlo - pad, xhi + pad)
+    } else if xlo == xhi {
+        (xlo - 5.0, xlo + 5.0)
     } else {
         (0.0, 100.0)
     };
@@ -250,28 +313,25 @@ pub fn bland_altman_pages(results: &ResultsFile) -> Vec<Page> {
     let cols = rs.len().min(3);
     let pw = (PAGE_W - 2.0 * MARGIN - 14.0 * cols as f32) / cols as f32;
     let ph = 38.0;
+    let diff_unit = if q.unit == "pct" {
+        "% of the pair's mean"
+    } else {
+        "pp"
+    };
     let mut pages = Vec::new();
     let mut page = Page::default();
-    let mut y = MARGIN + 2.0;
-    let title = |page: &mut Page, y: &mut f32| {
-        page.text(
-            MARGIN,
-            *y,
-            13.0,
-            Weight::Bold,
-            "EF agreement per method and acceleration (Bland–Altman)",
-        );
-        *y += 5.5;
-        for line in super::wrap(
-            "Each point is one subject: x = mean of the method's and the reference's EF, y = method minus reference (pp). Solid line: bias; dashed: 95 % limits of agreement (bias ± 1.96 SD); grey dashed: the declared margin for the limits.",
-            125,
-        ) {
-            page.text(MARGIN, *y, 7.5, Weight::Regular, &line);
-            *y += 3.6;
-        }
-        *y += 4.0;
+    let title = |page: &mut Page| {
+        heading(
+            page,
+            &format!("{} agreement per method and acceleration (Bland–Altman)", q.name),
+            &format!(
+                "Each point is one subject: x = mean of the method's and the reference's {n} ({vu}), y = method minus reference ({diff_unit}). Solid line: bias; dashed: 95 % limits of agreement (bias ± 1.96 SD); grey: the declared margin (dashed for the limits, dotted for the bias).",
+                n = q.name,
+                vu = q.value_unit
+            ),
+        ) + 4.0
     };
-    title(&mut page, &mut y);
+    let mut y = title(&mut page);
     for (i, (m, p)) in names.iter().enumerate() {
         for (k, r) in rs.iter().enumerate() {
             let col = k % cols;
@@ -280,8 +340,7 @@ pub fn bland_altman_pages(results: &ResultsFile) -> Vec<Page> {
             }
             if col == 0 && y + ph + 14.0 > PAGE_H - MARGIN {
                 pages.push(std::mem::take(&mut page));
-                y = MARGIN + 2.0;
-                title(&mut page, &mut y);
+                y = title(&mut page);
             }
             let ax = Axes {
                 x: MARGIN + 12.0 + col as f32 * (pw + 14.0),
@@ -295,17 +354,21 @@ pub fn bland_altman_pages(results: &ResultsFile) -> Vec<Page> {
             ax.draw(
                 &mut page,
                 None,
-                "mean EF (%)",
+                &format!("mean {} ({})", q.name, q.value_unit),
                 &format!("{m}, R = {}", trim_num(*r)),
                 6.5,
             );
             ax.hline(&mut page, 0.0, grey(0.6), &[], 0.4);
             if let Some(l) = lim {
-                ax.hline(&mut page, l, grey(0.45), &[3.0, 2.0], 0.7);
-                ax.hline(&mut page, -l, grey(0.45), &[3.0, 2.0], 0.7);
+                ax.hline(&mut page, l, grey(0.45), lim_dash, 0.7);
+                ax.hline(&mut page, -l, grey(0.45), lim_dash, 0.7);
             }
             let row = results.agreement.iter().find(|x| {
-                &x.method == m && &x.pattern == p && x.accel_nominal == *r && x.quantity == "ef_pct"
+                &x.method == m
+                    && &x.pattern == p
+                    && x.accel_nominal == *r
+                    && x.quantity == q.quantity
+                    && x.unit == q.unit
             });
             match row.and_then(|x| x.bias.map(|b| (b, x.loa_lower, x.loa_upper))) {
                 Some((b, lo, hi)) => {
@@ -322,7 +385,7 @@ pub fn bland_altman_pages(results: &ResultsFile) -> Vec<Page> {
                     "fewer than 3 subjects measured",
                 ),
             }
-            for pt in ef_pairs(&results.runs, m, p, *r) {
+            for pt in pairs(&results.runs, q, m, p, *r) {
                 marker(
                     &mut page,
                     ax.at(pt.0, pt.1.clamp(-span, span)),

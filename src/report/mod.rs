@@ -41,7 +41,12 @@ pub fn render(results: &ResultsFile, panels: Option<&Path>) -> Vec<u8> {
         y,
         10.0,
         Weight::Regular,
-        &format!("Study {}  -  cinegauge {}", results.study, results.version),
+        &format!(
+            "Study {}  ·  report of {}  ·  cinegauge {}",
+            results.study,
+            report_date(),
+            results.version
+        ),
     );
     y += 6.0;
     y = caution_box(&mut page, y);
@@ -86,7 +91,9 @@ pub fn render(results: &ResultsFile, panels: Option<&Path>) -> Vec<u8> {
     decision::decision_summary(&mut page, results, y);
     pages.push(page);
     pages.extend(figures::accel_page(results));
-    pages.extend(figures::bland_altman_pages(results));
+    for q in figures::BA_QUANTITIES {
+        pages.extend(figures::bland_altman_pages(results, q));
+    }
     pages.extend(figures::curve_pages(results));
     if let Some(dir) = panels {
         pages.extend(images::image_pages(results, dir, &mut doc));
@@ -353,6 +360,28 @@ fn ef_grid(page: &mut Page, results: &ResultsFile, mut y: f32) -> f32 {
     y
 }
 
+/// The report's date (UTC): `SOURCE_DATE_EPOCH` when set, as reproducible builds do, so the
+/// same results give the same bytes; otherwise today.
+fn report_date() -> String {
+    let secs = std::env::var("SOURCE_DATE_EPOCH")
+        .ok()
+        .and_then(|v| v.trim().parse::<i64>().ok())
+        .unwrap_or_else(|| {
+            std::time::SystemTime::now()
+                .duration_since(std::time::UNIX_EPOCH)
+                .map_or(0, |d| d.as_secs() as i64)
+        });
+    date_of(secs)
+}
+
+/// `YYYY-MM-DD` (UTC) of a Unix time; the epoch itself when out of range.
+pub fn date_of(secs: i64) -> String {
+    let d = time::OffsetDateTime::from_unix_timestamp(secs)
+        .unwrap_or(time::OffsetDateTime::UNIX_EPOCH)
+        .date();
+    format!("{:04}-{:02}-{:02}", d.year(), u8::from(d.month()), d.day())
+}
+
 fn caution_box(page: &mut Page, y: f32) -> f32 {
     let lines = wrap(CAUTION, 105);
     let h = 8.0 + 4.2 * lines.len() as f32;
@@ -423,5 +452,17 @@ fn trim_num(v: f64) -> String {
         format!("{v:.0}")
     } else {
         format!("{v}")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    /// Dates checked with Python's `datetime.fromtimestamp(s, timezone.utc)`: the epoch, a
+    /// leap day, and the tests' SOURCE_DATE_EPOCH.
+    #[test]
+    fn unix_times_become_calendar_dates() {
+        assert_eq!(super::date_of(0), "1970-01-01");
+        assert_eq!(super::date_of(951_782_400), "2000-02-29");
+        assert_eq!(super::date_of(1_764_633_600), "2025-12-02");
     }
 }
