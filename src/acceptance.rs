@@ -60,40 +60,6 @@ impl Criterion {
             Measure::CccAtLeast => format!("{q} CCC at least {}", trim(self.limit)),
         }
     }
-
-    /// Checks the criterion's own consistency.
-    ///
-    /// # Errors
-    /// A message naming the quantity, unit or limit at fault.
-    pub fn validate(&self) -> Result<(), String> {
-        if !QUANTITIES.contains(&self.quantity.as_str()) {
-            return Err(format!(
-                "criterion on `{}`: not a computed quantity (use one of {})",
-                self.quantity,
-                QUANTITIES.join(", ")
-            ));
-        }
-        let units: &[&str] = if self.quantity == "ef_pct" {
-            &["pp"]
-        } else {
-            &["ml", "pct"]
-        };
-        if !units.contains(&self.unit.as_str()) {
-            return Err(format!(
-                "criterion on `{}`: unit `{}` (use {})",
-                self.quantity,
-                self.unit,
-                units.join(" or ")
-            ));
-        }
-        if !(self.limit.is_finite() && self.limit > 0.0) {
-            return Err(format!(
-                "criterion on `{}`: limit {} must be a positive number",
-                self.quantity, self.limit
-            ));
-        }
-        Ok(())
-    }
 }
 
 /// Quantities agreement is computed for.

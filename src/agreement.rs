@@ -191,7 +191,8 @@ fn groups(runs: &[RunRow]) -> Vec<Group<'_>> {
     out
 }
 
-fn value(n: &Numbers, quantity: &str) -> f64 {
+/// The value of a quantity key (`ef_pct`, `edv_ml`, `esv_ml`, `sv_ml`) in a run's numbers.
+pub fn value(n: &Numbers, quantity: &str) -> f64 {
     match quantity {
         "ef_pct" => n.ef_pct,
         "edv_ml" => n.edv_ml,

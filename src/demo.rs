@@ -244,17 +244,15 @@ pub fn run_subject(
     Ok(measured
         .into_iter()
         .zip(fidelity)
-        .map(|((rec, outcome), fidelity)| {
+        .zip(runs)
+        // One reconstruction per request, in request order.
+        .map(|(((rec, outcome), fidelity), req)| {
             let is_reference = rec.plan.method == crate::agreement::REFERENCE;
             let mut row =
                 pipeline::result_row(code, &rec.plan, outcome, params, Some(truth.clone()));
             row.fidelity = fidelity;
             row.seeds = seeds.to_vec();
-            if let Some(req) = runs.iter().find(|q| {
-                q.method.id() == rec.plan.method && q.sampling.accel == rec.plan.accel_nominal
-            }) {
-                row.parameters = req.params.iter().map(|(k, v)| (k.to_string(), v)).collect();
-            }
+            row.parameters = req.params.iter().map(|(k, v)| (k.to_string(), v)).collect();
             if is_reference && row.numbers.is_some() {
                 row.seed_jitter = jitter.clone();
             }

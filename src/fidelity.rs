@@ -9,6 +9,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use crate::geometry::Geometry;
+use crate::segment::grow::{from_gray, to_gray};
 use crate::stats::image_quality::{mean_in, nrmse, psnr, ssim, ssim_map};
 use crate::stats::overlap::{dice, hausdorff95};
 
@@ -74,11 +75,7 @@ pub fn fidelity(
             let whole = ssim(t, r, range);
             let m = ref_masks.slice(ndarray::s![s, f, .., ..]);
             let near = if m.iter().any(|&b| b) {
-                let g = crate::segment::grow::to_gray(m);
-                let d = dilate(&g, Norm::LInf, LV_MARGIN_PX);
-                let region = ndarray::Array2::from_shape_fn(m.dim(), |(r, c)| {
-                    d.get_pixel(c as u32, r as u32)[0] != 0
-                });
+                let region = from_gray(&dilate(&to_gray(m), Norm::LInf, LV_MARGIN_PX));
                 let n = region.iter().filter(|&&b| b).count();
                 mean_in(map.view(), region.view()).map(|v| (v, n))
             } else {
@@ -92,10 +89,13 @@ pub fn fidelity(
         .iter()
         .filter_map(|p| p.1)
         .fold((0.0, 0usize), |(s, n), (v, k)| (s + v * k as f64, n + k));
-    let frame = |m: ArrayView4<bool>, f: usize| m.index_axis(Axis(1), f).to_owned();
-    let dices: Vec<f64> = (0..nf)
-        .filter_map(|f| dice(frame(test_masks, f).iter(), frame(ref_masks, f).iter()))
-        .collect();
+    let frame_dice = |f: usize| {
+        dice(
+            test_masks.index_axis(Axis(1), f).iter(),
+            ref_masks.index_axis(Axis(1), f).iter(),
+        )
+    };
+    let dices: Vec<f64> = (0..nf).filter_map(frame_dice).collect();
     let spacing = (
         geom.slice_spacing_mm,
         geom.row_spacing_mm,
@@ -114,8 +114,8 @@ pub fn fidelity(
         ssim: ssim_mean,
         ssim_lv: (n > 0).then(|| sum / n as f64),
         dice_mean: (!dices.is_empty()).then(|| dices.iter().sum::<f64>() / dices.len() as f64),
-        dice_ed: dice(frame(test_masks, ed).iter(), frame(ref_masks, ed).iter()),
-        dice_es: dice(frame(test_masks, es).iter(), frame(ref_masks, es).iter()),
+        dice_ed: frame_dice(ed),
+        dice_es: frame_dice(es),
         hd95_ed_mm: hd(ed),
         hd95_es_mm: hd(es),
     }

@@ -403,6 +403,11 @@ fn curve_error_and_sample_size_follow_their_definitions() {
         subjects_for_limits(1.5, 2.0, 5.0, 0.95, 0.95).is_none(),
         "1.5 + 3.92 > 5"
     );
+    // Bland's worked figure (from memory: his note on sample size for agreement studies): with
+    // 100 subjects the 95 % CI of each limit is about ±0.34 SD. So a margin of 1.96 + 0.34 SD
+    // needs about 100 subjects (95 to 105: the note rounds to two decimals).
+    let n = subjects_for_limits(0.0, 1.0, 1.96 + 0.34, 0.95, 0.95).unwrap();
+    assert!((95..=105).contains(&n), "n = {n}");
 }
 
 #[test]

@@ -5,7 +5,7 @@ use super::canvas::{grey, Page, Weight, PAGE_H, PAGE_W};
 use super::plot::{self, marker, Axes};
 use super::{trim_num, MARGIN, ROW_H};
 use crate::acceptance::Measure;
-use crate::agreement::{AgreementRow, REFERENCE};
+use crate::agreement::{self, AgreementRow, REFERENCE};
 use crate::results::{ResultsFile, RunRow};
 
 /// A figure page's title and its explanation; returns the vertical position below them.
@@ -237,28 +237,19 @@ pub const BA_QUANTITIES: [BaQuantity; 3] = [
     },
 ];
 
-fn quantity_of(n: &crate::measure::Numbers, q: &str) -> f64 {
-    match q {
-        "ef_pct" => n.ef_pct,
-        "edv_ml" => n.edv_ml,
-        "esv_ml" => n.esv_ml,
-        _ => n.sv_ml,
-    }
-}
-
 /// Pairs (mean, difference) of one quantity for one method and R against the same subjects'
 /// reference; differences in percent of the pair's mean for `pct`.
 fn pairs(runs: &[RunRow], q: BaQuantity, method: &str, pattern: &str, r: f64) -> Vec<(f64, f64)> {
     runs.iter()
         .filter(|x| x.method == method && x.pattern == pattern && x.accel_nominal == r)
         .filter_map(|x| {
-            let m = quantity_of(x.numbers.as_ref()?, q.quantity);
+            let m = agreement::value(x.numbers.as_ref()?, q.quantity);
             let reference = runs
                 .iter()
                 .find(|y| y.subject == x.subject && y.method == REFERENCE)?
                 .numbers
                 .as_ref()
-                .map(|n| quantity_of(n, q.quantity))?;
+                .map(|n| agreement::value(n, q.quantity))?;
             let mean = 0.5 * (m + reference);
             let d = if q.unit == "pct" {
                 100.0 * (m - reference) / mean

@@ -161,7 +161,7 @@ pub fn to_gray(mask: ArrayView2<bool>) -> GrayImage {
     })
 }
 
-fn from_gray(img: &GrayImage) -> Array2<bool> {
+pub(crate) fn from_gray(img: &GrayImage) -> Array2<bool> {
     Array2::from_shape_fn((img.height() as usize, img.width() as usize), |(r, c)| {
         img.get_pixel(c as u32, r as u32)[0] != 0
     })

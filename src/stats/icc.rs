@@ -88,6 +88,12 @@ pub fn mean_squares(ratings: &[Vec<f64>]) -> Result<MeanSquares, StatsError> {
     })
 }
 
+/// Lower and upper bounds of an F ratio `f` with `(d1, d2)` degrees of freedom at quantile
+/// `q`: `f / F(q; d1, d2)` and `f · F(q; d2, d1)` (Shrout & Fleiss 1979, Table 5).
+fn f_bounds(f: f64, d1: f64, d2: f64, q: f64) -> (f64, f64) {
+    (f / f_quantile(q, d1, d2), f * f_quantile(q, d2, d1))
+}
+
 /// The six forms for `ratings` (`ratings[i][j]`: subject i, rater j) at `confidence`.
 ///
 /// Intervals: one-way and consistency forms from the F ratio's quantiles (Shrout & Fleiss
@@ -113,15 +119,15 @@ pub fn icc_all(ratings: &[Vec<f64>], confidence: f64) -> Result<Vec<Icc>, StatsE
     // One-way.
     let (df1, df2) = (n - 1.0, n * (k - 1.0));
     let f1 = bms / wms;
-    let fl = f1 / f_quantile(q, df1, df2);
-    let fu = f1 * f_quantile(q, df2, df1);
+    let (fl1, fu1) = f_bounds(f1, df1, df2, q);
     let p1 = f_sf(f1, df1, df2);
+    let (d1_one, d2_one) = (df1, df2);
     out.push(Icc {
         form: "1,1".into(),
         model: "one-way random, single rating",
         value: (bms - wms) / (bms + (k - 1.0) * wms),
-        ci_lower: (fl - 1.0) / (fl + k - 1.0),
-        ci_upper: (fu - 1.0) / (fu + k - 1.0),
+        ci_lower: (fl1 - 1.0) / (fl1 + k - 1.0),
+        ci_upper: (fu1 - 1.0) / (fu1 + k - 1.0),
         f: f1,
         df: (df1, df2),
         p_value: p1,
@@ -152,14 +158,13 @@ pub fn icc_all(ratings: &[Vec<f64>], confidence: f64) -> Result<Vec<Icc>, StatsE
     });
 
     // Two-way mixed, consistency.
-    let fl = f3 / f_quantile(q, df1, df2);
-    let fu = f3 * f_quantile(q, df2, df1);
+    let (fl3, fu3) = f_bounds(f3, df1, df2, q);
     out.push(Icc {
         form: "C,1".into(),
         model: "two-way mixed, consistency, single rating",
         value: (bms - ems) / (bms + (k - 1.0) * ems),
-        ci_lower: (fl - 1.0) / (fl + k - 1.0),
-        ci_upper: (fu - 1.0) / (fu + k - 1.0),
+        ci_lower: (fl3 - 1.0) / (fl3 + k - 1.0),
+        ci_upper: (fu3 - 1.0) / (fu3 + k - 1.0),
         f: f3,
         df: (df1, df2),
         p_value: p3,
@@ -167,18 +172,14 @@ pub fn icc_all(ratings: &[Vec<f64>], confidence: f64) -> Result<Vec<Icc>, StatsE
 
     // Average of k ratings (Spearman–Brown of the single-rating bounds).
     let avg = |x: f64| k * x / (1.0 + (k - 1.0) * x);
-    let f1 = bms / wms;
-    let (d1, d2) = (n - 1.0, n * (k - 1.0));
-    let fl = f1 / f_quantile(q, d1, d2);
-    let fu = f1 * f_quantile(q, d2, d1);
     out.push(Icc {
         form: "1,k".into(),
         model: "one-way random, mean of k ratings",
         value: (bms - wms) / bms,
-        ci_lower: 1.0 - 1.0 / fl,
-        ci_upper: 1.0 - 1.0 / fu,
+        ci_lower: 1.0 - 1.0 / fl1,
+        ci_upper: 1.0 - 1.0 / fu1,
         f: f1,
-        df: (d1, d2),
+        df: (d1_one, d2_one),
         p_value: p1,
     });
     out.push(Icc {
@@ -191,14 +192,12 @@ pub fn icc_all(ratings: &[Vec<f64>], confidence: f64) -> Result<Vec<Icc>, StatsE
         df: (df1, df2),
         p_value: p3,
     });
-    let fl = f3 / f_quantile(q, df1, df2);
-    let fu = f3 * f_quantile(q, df2, df1);
     out.push(Icc {
         form: "C,k".into(),
         model: "two-way mixed, consistency, mean of k ratings",
         value: (bms - ems) / bms,
-        ci_lower: 1.0 - 1.0 / fl,
-        ci_upper: 1.0 - 1.0 / fu,
+        ci_lower: 1.0 - 1.0 / fl3,
+        ci_upper: 1.0 - 1.0 / fu3,
         f: f3,
         df: (df1, df2),
         p_value: p3,

@@ -4,6 +4,8 @@
 
 use ndarray::{ArrayView2, ArrayView3};
 
+use crate::io::png::on_edge;
+
 /// Dice coefficient `2|A∩B| / (|A| + |B|)`; `None` when both masks are empty.
 pub fn dice<'a>(
     a: impl IntoIterator<Item = &'a bool>,
@@ -20,18 +22,8 @@ pub fn dice<'a>(
 
 /// Boundary pixels of one slice: in the mask with a 4-neighbour outside it or at the edge.
 fn boundary(mask: ArrayView2<bool>) -> Vec<(usize, usize)> {
-    let (rows, cols) = mask.dim();
     mask.indexed_iter()
-        .filter(|&((r, c), &m)| {
-            m && (r == 0
-                || c == 0
-                || r + 1 == rows
-                || c + 1 == cols
-                || !mask[(r - 1, c)]
-                || !mask[(r + 1, c)]
-                || !mask[(r, c - 1)]
-                || !mask[(r, c + 1)])
-        })
+        .filter(|&((r, c), _)| on_edge(&mask, r, c))
         .map(|(p, _)| p)
         .collect()
 }
