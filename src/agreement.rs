@@ -575,6 +575,7 @@ mod tests {
             fidelity: None,
             parameters: Default::default(),
             seeds: Vec::new(),
+            acquisition: None,
         }
     }
 

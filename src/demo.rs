@@ -251,6 +251,7 @@ pub fn run_subject(
             let mut row =
                 pipeline::result_row(code, &rec.plan, outcome, params, Some(truth.clone()));
             row.fidelity = fidelity;
+            row.acquisition = Some(rec.acquisition.clone());
             row.seeds = seeds.to_vec();
             row.parameters = req.params.iter().map(|(k, v)| (k.to_string(), v)).collect();
             if is_reference && row.numbers.is_some() {

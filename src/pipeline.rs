@@ -11,8 +11,8 @@ use crate::geometry::Geometry;
 use crate::measure::{self, MeasureError, PhaseChoice, Volumetry};
 use crate::phantom::Phantom;
 use crate::recon::{self, Params, ReconInput, ReconPlan, Reconstructor};
-use crate::results::{RunRow, RunStatus, Truth};
-use crate::sampling::{SamplingError, SamplingSpec};
+use crate::results::{AcquisitionRecord, RunRow, RunStatus, Truth};
+use crate::sampling::{Pattern, SamplingError, SamplingMask, SamplingSpec};
 use crate::segment::{self, Seed, SegmentError, SegmentParams, Segmentation, SliceRange};
 
 /// One reconstruction to run on every slice of a subject.
@@ -58,6 +58,8 @@ pub struct Reconstructed {
     pub stack: Result<Array4<f32>, String>,
     /// One entry per reconstructed slice.
     pub log: Vec<SliceLog>,
+    /// Sampling and coil processing, for provenance.
+    pub acquisition: AcquisitionRecord,
 }
 
 /// Failure of segmentation or measurement of one series.
@@ -81,20 +83,53 @@ pub struct CoilPrep {
     pub virtual_coils: usize,
 }
 
-/// Runs every request on every slice; `source(k)` gives slice `k`'s fully sampled k-space
+impl CoilPrep {
+    /// Virtual coils `method` is compressed to under `mask` with `coils` receivers, if any:
+    /// never for `reference`, and only where a calibration block is acquired in every frame.
+    fn compresses_to(&self, method: &str, mask: &SamplingMask, coils: usize) -> Option<usize> {
+        (self.virtual_coils > 0
+            && self.virtual_coils < coils
+            && method != crate::agreement::REFERENCE
+            && mask.calibration_block().is_some())
+        .then_some(self.virtual_coils)
+    }
+}
+
+/// The provenance record of one request on `coils` receivers.
+fn acquisition_record(
+    req: &RunRequest,
+    mask: &SamplingMask,
+    prep: &CoilPrep,
+    coils: usize,
+) -> AcquisitionRecord {
+    let s = &req.sampling;
+    let random = s.pattern == Pattern::VariableDensity;
+    AcquisitionRecord {
+        acs_lines: s.acs_lines,
+        density_law: random.then_some(s.law),
+        kt_shear: (s.pattern == Pattern::KtLattice).then_some(s.shear),
+        rng_seed: random.then_some(s.rng_seed),
+        coils,
+        virtual_coils: prep.compresses_to(req.method.id(), mask, coils),
+        prewhitened: prep.whitening.is_some(),
+    }
+}
+
+/// Runs every request on every slice of a `(coil, slice, frame, ky, kx)` stack; `source(k)`
+/// gives slice `k`'s fully sampled k-space
 /// `[coil, frame, ky, kx]`, so only one slice is in memory at a time. A method failing on
 /// a slice fails that run only; a slice that cannot be read fails every run.
 ///
 /// # Errors
 /// A sampling request that does not fit the matrix.
 pub fn reconstruct_slices(
-    dims: (usize, usize, usize, usize),
+    dims: (usize, usize, usize, usize, usize),
     source: &mut dyn FnMut(usize) -> Result<Array4<Complex32>, String>,
     runs: &[RunRequest],
     prep: &CoilPrep,
     progress: &dyn Fn(usize, usize),
 ) -> Result<Vec<Reconstructed>, SamplingError> {
-    let (ns, nf, nr, nc) = dims;
+    let (nco, ns, nf, nr, nc) = dims;
     let fft = CenteredFft2::new(nr, nc);
     let masks = runs
         .iter()
@@ -112,6 +147,7 @@ pub fn reconstruct_slices(
             },
             stack: Ok(Array4::zeros((ns, nf, nr, nc))),
             log: Vec::new(),
+            acquisition: acquisition_record(r, mask, prep, nco),
         })
         .collect();
     for k in 0..ns {
@@ -138,19 +174,12 @@ pub fn reconstruct_slices(
                 };
                 let mut kspace = full.clone();
                 mask.apply(kspace.view_mut());
-                if prep.virtual_coils > 0
-                    && prep.virtual_coils < kspace.dim().0
-                    && req.method.id() != "reference"
-                {
-                    if let Some(block) = mask.calibration_block() {
-                        let m = recon::coils::compression_matrix(
-                            kspace.view(),
-                            block,
-                            prep.virtual_coils,
-                            1.0,
-                        );
-                        kspace = recon::coils::mix_coils(kspace.view(), &m);
-                    }
+                if let (Some(k), Some(block)) = (
+                    prep.compresses_to(req.method.id(), mask, kspace.dim().0),
+                    mask.calibration_block(),
+                ) {
+                    let m = recon::coils::compression_matrix(kspace.view(), block, k, 1.0);
+                    kspace = recon::coils::mix_coils(kspace.view(), &m);
                 }
                 let input = ReconInput {
                     kspace: kspace.view(),
@@ -187,7 +216,7 @@ pub fn reconstruct_phantom(
     prep: &CoilPrep,
 ) -> Result<Vec<Reconstructed>, SamplingError> {
     let spec = ph.spec();
-    let dims = (spec.slices, spec.frames, spec.rows, spec.cols);
+    let dims = (spec.coils, spec.slices, spec.frames, spec.rows, spec.cols);
     reconstruct_slices(
         dims,
         &mut |k| {
@@ -292,6 +321,7 @@ pub fn result_row(
         fidelity: None,
         parameters: Default::default(),
         seeds: Vec::new(),
+        acquisition: None,
     }
 }
 

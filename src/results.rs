@@ -12,6 +12,7 @@ use crate::caution::CAUTION;
 use crate::fidelity::Fidelity;
 use crate::io::{write_atomic, IoError};
 pub use crate::measure::Numbers;
+use crate::sampling::DensityLaw;
 use crate::seed_jitter::SeedJitter;
 use crate::segment::{FrameExtent, GuardEvent, Seed};
 
@@ -90,6 +91,32 @@ pub struct RunRow {
     /// The LV seeds the series was segmented from.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub seeds: Vec<Seed>,
+    /// How the k-space was sampled and the coils processed (runs reconstructed here).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub acquisition: Option<AcquisitionRecord>,
+}
+
+/// Sampling and coil processing of one run, for provenance.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AcquisitionRecord {
+    /// Width of the fully sampled centre, in lines (0 for `full`).
+    pub acs_lines: usize,
+    /// Density law of `variable-density`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub density_law: Option<DensityLaw>,
+    /// Lines the `kt-lattice` moves per frame.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub kt_shear: Option<usize>,
+    /// Seed of the pseudo-random line choice (`variable-density`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rng_seed: Option<u64>,
+    /// Receiver coils in the data.
+    pub coils: usize,
+    /// Virtual coils after compression, when compressed.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub virtual_coils: Option<usize>,
+    /// Whether noise pre-whitening was applied.
+    pub prewhitened: bool,
 }
 
 /// Provenance of one input.

@@ -97,11 +97,22 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
         );
         assert_eq!(r["accel_nominal"].as_f64(), Some(1.0));
         assert_eq!(r["pattern"], "full");
+        // The reference is the uncompressed root-sum-of-squares of all 8 coils.
+        assert_eq!(r["acquisition"]["coils"], 8);
+        assert!(r["acquisition"].get("virtual_coils").is_none());
     }
     assert_eq!(references, 3);
     for r in runs.iter().filter(|r| r["method"] != "reference") {
         let nominal = r["accel_nominal"].as_f64().unwrap();
         let eff = r["accel_effective"].as_f64().unwrap();
+        // As the demo study file declares: 12 ACS lines, 4 virtual coils, seed 1.
+        let a = &r["acquisition"];
+        assert_eq!(
+            (a["acs_lines"].as_u64(), a["virtual_coils"].as_u64()),
+            (Some(12), Some(4))
+        );
+        assert_eq!(a["density_law"]["law"], "polynomial");
+        assert_eq!(a["rng_seed"], 1);
         assert!(
             eff > 1.0 && eff < nominal,
             "the ACS block makes effective R below nominal: {eff} vs {nominal}"
@@ -313,6 +324,12 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
             "caution in the PDF text"
         );
         assert!(t.contains("Decision summary") && t.contains("EF bias within ±2 pp"));
+        let flat = t.split_whitespace().collect::<Vec<_>>().join(" ");
+        assert!(
+            flat.contains("compressed to 4 virtual coils")
+                && flat.contains("fully sampled centre 12"),
+            "sampling and coil processing in the provenance"
+        );
         assert!(
             t.contains("report of 2025-12-02"),
             "date from SOURCE_DATE_EPOCH"

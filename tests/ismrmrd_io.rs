@@ -177,7 +177,7 @@ fn reconstruct_reads_an_ismrmrd_file() {
     let log: serde_json::Value =
         serde_json::from_slice(&std::fs::read(out.path().join("recon.json")).expect("log"))
             .expect("json");
-    assert_eq!(log["noise_prewhitening"], true);
+    assert_eq!(log["prewhitened"], true);
     assert_eq!(log["input_sha256"][0][0], "cine.h5");
     let images = cinegauge::io::read_images(out.path(), None).expect("images");
     assert_eq!(images.images.dim(), (2, 3, 12, 16));

@@ -11,6 +11,7 @@ use cinegauge::caution::CAUTION;
 use cinegauge::io::{self, npy, write_atomic};
 use cinegauge::pipeline::{self, CoilPrep, RunRequest, SliceLog};
 use cinegauge::recon::{self, params::split_assignment, Params};
+use cinegauge::results::AcquisitionRecord;
 use cinegauge::sampling::{Pattern, SamplingSpec, DEFAULT_ACS_LINES};
 
 /// Arguments of `reconstruct`.
@@ -72,10 +73,8 @@ struct ReconLog<'a> {
     pattern: &'a str,
     accel_nominal: f64,
     accel_effective: f64,
-    acs_lines: usize,
-    rng_seed: u64,
-    noise_prewhitening: bool,
-    virtual_coils: usize,
+    #[serde(flatten)]
+    acquisition: &'a AcquisitionRecord,
     input_sha256: Vec<(String, String)>,
     slices: &'a [SliceLog],
     runtime_ms: f64,
@@ -115,7 +114,7 @@ pub fn run(a: ReconstructArgs, quiet: bool) -> anyhow::Result<()> {
     };
     let prog = Progress::new("reconstruct", ns as u64, quiet);
     let mut rec = pipeline::reconstruct_slices(
-        (ns, nf, ny, nx),
+        (folder.dims.1, ns, nf, ny, nx),
         &mut |k| folder.read(k).map_err(|e| e.to_string()),
         std::slice::from_ref(&request),
         &prep,
@@ -166,10 +165,7 @@ pub fn run(a: ReconstructArgs, quiet: bool) -> anyhow::Result<()> {
         pattern: pattern.id(),
         accel_nominal: rec.plan.accel_nominal,
         accel_effective: rec.plan.accel_effective,
-        acs_lines: a.acs_lines,
-        rng_seed: a.rng_seed,
-        noise_prewhitening: prep.whitening.is_some(),
-        virtual_coils: prep.virtual_coils,
+        acquisition: &rec.acquisition,
         input_sha256: hashes,
         slices: &rec.log,
         runtime_ms: started.elapsed().as_secs_f64() * 1000.0,

@@ -2,7 +2,7 @@
 //! method at every acceleration against each of them, and the highest R that passes.
 
 use super::canvas::{grey, rgb, Page, Weight, PAGE_W};
-use super::{trim_num, wrap, MARGIN, ROW_H};
+use super::{trim_num, wrap, MARGIN, ROW_H, TEXT_W};
 use crate::acceptance::Outcome;
 use crate::results::ResultsFile;
 
@@ -108,7 +108,7 @@ pub fn decision_summary(page: &mut Page, results: &ResultsFile, mut y: f32) -> f
         "A method that could not be measured on a subject fails at that R. n: subjects with both runs measured.",
     ];
     for n in notes {
-        for line in wrap(n, 130) {
+        for line in wrap(n, 7.0, TEXT_W) {
             page.text(MARGIN, y, 7.0, Weight::Regular, &line);
             y += 3.5;
         }
@@ -150,7 +150,7 @@ pub fn decision_summary(page: &mut Page, results: &ResultsFile, mut y: f32) -> f
             trim_num(v.accel_nominal),
             v.failed_subjects.join(", ")
         );
-        for l in wrap(&line, 130) {
+        for l in wrap(&line, 7.0, TEXT_W) {
             page.text(MARGIN, y, 7.0, Weight::Regular, &l);
             y += 3.5;
         }

@@ -13,7 +13,7 @@ fn heading(page: &mut Page, title: &str, blurb: &str) -> f32 {
     let mut y = MARGIN + 2.0;
     page.text(MARGIN, y, 13.0, Weight::Bold, title);
     y += 5.5;
-    for line in super::wrap(blurb, 125) {
+    for line in super::wrap(blurb, 7.5, super::TEXT_W) {
         page.text(MARGIN, y, 7.5, Weight::Regular, &line);
         y += 3.6;
     }

@@ -62,7 +62,7 @@ pub fn image_pages(results: &ResultsFile, dir: &Path, doc: &mut PdfDocument) -> 
             "The images behind the numbers",
         );
         *y += 5.0;
-        for line in super::wrap("Each pair: the seed's slice at the reference's end-diastolic (left) and end-systolic (right) frame, with the LV contour found on that image; one window/level per subject.", 125) {
+        for line in super::wrap("Each pair: the seed's slice at the reference's end-diastolic (left) and end-systolic (right) frame, with the LV contour found on that image; one window/level per subject.", 7.5, super::TEXT_W) {
             page.text(MARGIN, *y, 7.5, Weight::Regular, &line);
             *y += 3.6;
         }

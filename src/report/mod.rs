@@ -14,7 +14,7 @@ use printpdf::{Mm, PdfDocument, PdfPage, PdfSaveOptions};
 
 use crate::caution::CAUTION;
 use crate::io::{write_atomic, IoError};
-use crate::results::{ResultsFile, RunStatus};
+use crate::results::{ResultsFile, RunRow, RunStatus};
 use canvas::{grey, rgb, Page, Weight, PAGE_H, PAGE_W};
 
 const MARGIN: f32 = 16.0;
@@ -83,7 +83,7 @@ pub fn render(results: &ResultsFile, panels: Option<&Path>) -> Vec<u8> {
         ),
         "ED = frame of largest LV volume, ES = frame of smallest. R nominal / effective (all lines / acquired lines).".into(),
     ];
-    for line in compared.iter().flat_map(|l| wrap(l, 115)) {
+    for line in compared.iter().flat_map(|l| wrap(l, 8.5, TEXT_W)) {
         page.text(MARGIN, y, 8.5, Weight::Regular, &line);
         y += 4.3;
     }
@@ -134,7 +134,7 @@ pub fn render(results: &ResultsFile, panels: Option<&Path>) -> Vec<u8> {
     };
     y = header(&mut page, y);
     let mut failures = Vec::new();
-    let mut notes = Vec::new();
+    let notes = grouped_notes(&results.runs);
     for (i, r) in results.runs.iter().enumerate() {
         if y > PAGE_H - MARGIN - 20.0 {
             pages.push(page);
@@ -185,7 +185,7 @@ pub fn render(results: &ResultsFile, panels: Option<&Path>) -> Vec<u8> {
             RunStatus::Failed => {
                 failures.extend(r.messages.iter().map(|m| format!("{label}: {m}")))
             }
-            RunStatus::Ok => notes.extend(r.messages.iter().map(|m| format!("{label}: {m}"))),
+            RunStatus::Ok => {}
         }
     }
     y += 4.0;
@@ -220,7 +220,7 @@ pub fn render(results: &ResultsFile, panels: Option<&Path>) -> Vec<u8> {
         page.text(MARGIN, y, 10.0, Weight::Bold, title);
         y += 5.0;
         for m in list.iter() {
-            for line in wrap(m, 150) {
+            for line in wrap(m, 7.5, TEXT_W) {
                 if y > PAGE_H - MARGIN - 8.0 {
                     pages.push(page);
                     page = Page::default();
@@ -383,7 +383,7 @@ pub fn date_of(secs: i64) -> String {
 }
 
 fn caution_box(page: &mut Page, y: f32) -> f32 {
-    let lines = wrap(CAUTION, 105);
+    let lines = wrap(CAUTION, 8.5, TEXT_W - 8.0);
     let h = 8.0 + 4.2 * lines.len() as f32;
     page.fill_rect(MARGIN, y, PAGE_W - 2.0 * MARGIN, h, rgb(1.0, 0.93, 0.80));
     page.fill_rect(MARGIN, y, 1.5, h, rgb(0.75, 0.35, 0.0));
@@ -428,11 +428,18 @@ fn footer(page: &mut Page, n: usize, total: usize) {
 }
 
 /// Greedy word wrap at `width` characters.
-fn wrap(text: &str, width: usize) -> Vec<String> {
+/// Width of the text column between the margins, mm.
+const TEXT_W: f32 = PAGE_W - 2.0 * MARGIN;
+
+/// Breaks `text` into lines no wider than `max_mm` at `size_pt` in the regular face (measured
+/// with the embedded font's advance widths, so no line runs past the margin).
+fn wrap(text: &str, size_pt: f32, max_mm: f32) -> Vec<String> {
     let mut lines = vec![];
     let mut cur = String::new();
     for word in text.split_whitespace() {
-        if !cur.is_empty() && cur.len() + 1 + word.len() > width {
+        if !cur.is_empty()
+            && fonts::width_mm(&format!("{cur} {word}"), size_pt, Weight::Regular) > max_mm
+        {
             lines.push(std::mem::take(&mut cur));
         }
         if !cur.is_empty() {
@@ -444,6 +451,42 @@ fn wrap(text: &str, width: usize) -> Vec<String> {
         lines.push(cur);
     }
     lines
+}
+
+/// Notes of the measured runs, one line per subject and message, naming the runs that share
+/// it (the same stop usually recurs in every reconstruction of a subject).
+fn grouped_notes(runs: &[RunRow]) -> Vec<String> {
+    let mut groups: Vec<(&str, &str, Vec<&RunRow>)> = Vec::new();
+    for r in runs.iter().filter(|r| r.status == RunStatus::Ok) {
+        for m in &r.messages {
+            match groups
+                .iter_mut()
+                .find(|(s, msg, _)| *s == r.subject && *msg == m.as_str())
+            {
+                Some(g) => g.2.push(r),
+                None => groups.push((&r.subject, m, vec![r])),
+            }
+        }
+    }
+    groups
+        .into_iter()
+        .map(|(subject, message, rs)| {
+            let mut by_method: Vec<(String, Vec<String>)> = Vec::new();
+            for r in rs {
+                let key = format!("{} ({})", r.method, r.pattern);
+                let accel = trim_num(r.accel_nominal);
+                match by_method.iter_mut().find(|(k, _)| *k == key) {
+                    Some((_, v)) => v.push(accel),
+                    None => by_method.push((key, vec![accel])),
+                }
+            }
+            let runs: Vec<String> = by_method
+                .into_iter()
+                .map(|(k, v)| format!("{k} R = {}", v.join(", ")))
+                .collect();
+            format!("{subject}, {message} — in {}", runs.join("; "))
+        })
+        .collect()
 }
 
 /// `2` for 2.0, `2.5` for 2.5.

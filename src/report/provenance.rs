@@ -3,10 +3,10 @@
 //! and test.
 
 use super::canvas::{Page, Weight, PAGE_H};
-use super::{trim_num, wrap, MARGIN};
+use super::{trim_num, wrap, MARGIN, TEXT_W};
 use crate::agreement::REFERENCE;
 use crate::recon::REGISTRY;
-use crate::results::ResultsFile;
+use crate::results::{AcquisitionRecord, ResultsFile};
 
 /// Published sources of the formulas and tests the report's numbers rest on.
 const SOURCES: [&str; 12] = [
@@ -19,14 +19,45 @@ const SOURCES: [&str; 12] = [
     "SSIM: Wang Z, Bovik AC, Sheikh HR, Simoncelli EP. IEEE Trans Image Process 2004;13:600–612 (Gaussian window σ = 1.5, K1 = 0.01, K2 = 0.03).",
     "Dice LR. Ecology 1945;26:297–302 (overlap); Hausdorff distance, 95th percentile (common practice in segmentation studies).",
     "Region growing threshold: Otsu N. IEEE Trans Syst Man Cybern 1979;9:62–66 (initial level), then halfway between blood and wall (partial volume, common practice).",
-    "Reconstruction methods: the sources listed with each method above.",
+    "Reconstruction methods: the sources listed with each method above. Coil compression: Buehrer M et al. Magn Reson Med 2007;57:1131–1139; Huang F et al. Magn Reson Imaging 2008;26:133–141. Coil sensitivities where a method uses them: Walsh DO et al. Magn Reson Med 2000;43:682–690, from the time-averaged calibration block.",
     "Distribution functions: the statrs crate (t, F, normal), checked against published tables and SciPy.",
     "Plot colours: Okabe M, Ito K. Color Universal Design (2008), colour-blind-safe palette.",
 ];
 
+/// Sampling and coil processing of a run in words (a leading space, a closing full stop).
+fn describe_acquisition(a: &AcquisitionRecord) -> String {
+    let mut parts = Vec::new();
+    if a.acs_lines > 0 {
+        parts.push(format!("fully sampled centre {} lines", a.acs_lines));
+    }
+    if let Some(law) = a.density_law {
+        parts.push(format!(
+            "line density {} (d: distance from the centre, 0 to 1)",
+            law.describe()
+        ));
+    }
+    if let Some(shear) = a.kt_shear {
+        parts.push(format!("lattice shear {shear} line(s) per frame"));
+    }
+    if let Some(seed) = a.rng_seed {
+        parts.push(format!("--rng-seed {seed}"));
+    }
+    parts.push(match a.virtual_coils {
+        Some(k) => format!(
+            "{} coils compressed to {k} virtual coils (PCA of the calibration block)",
+            a.coils
+        ),
+        None => format!("{} coils, not compressed", a.coils),
+    });
+    if a.prewhitened {
+        parts.push("noise pre-whitened".into());
+    }
+    format!(" Sampling and coils: {}.", parts.join("; "))
+}
+
 /// Writes lines, breaking pages as needed.
 fn lines(pages: &mut Vec<Page>, page: &mut Page, y: &mut f32, text: &str, size: f32, indent: f32) {
-    for l in wrap(text, 120) {
+    for l in wrap(text, size, TEXT_W - indent) {
         if *y > PAGE_H - MARGIN - 10.0 {
             pages.push(std::mem::take(page));
             *y = MARGIN + 2.0;
@@ -151,20 +182,26 @@ pub fn provenance_pages(results: &ResultsFile) -> Vec<Page> {
             .iter()
             .map(|(k, v)| format!("{k} = {}", trim_num(*v)))
             .collect();
+        let acquisition = r
+            .acquisition
+            .as_ref()
+            .map_or(String::new(), describe_acquisition);
         let description = REGISTRY
             .iter()
             .find(|m| m.id() == r.method)
-            .map_or("reconstructed elsewhere", |m| m.description());
+            .map_or("reconstructed elsewhere", |m| m.description())
+            .trim_end_matches('.');
         lines(
             p,
             &mut page,
             &mut y,
             &format!(
-                "{} ({}, R = {}): {}{}",
+                "{} ({}, R = {}): {}.{}{}",
                 r.method,
                 r.pattern,
                 rs.join(", "),
                 description,
+                acquisition,
                 if params.is_empty() {
                     String::new()
                 } else {

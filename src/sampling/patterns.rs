@@ -5,13 +5,13 @@
 
 use ndarray::Array2;
 use rand::RngExt;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use super::{Pattern, SamplingError, SamplingSpec};
 
 /// Density law of `variable-density` as a function of the distance `d ∈ [0, 1]` from the
 /// k-space centre (relative to half the matrix).
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[serde(tag = "law", rename_all = "kebab-case")]
 pub enum DensityLaw {
     /// `w(d) = (1 − d)^power + floor`.
@@ -36,6 +36,18 @@ impl Default for DensityLaw {
 const DENSITY_FLOOR: f64 = 0.02;
 
 impl DensityLaw {
+    /// The law in words, with its floor (for the report).
+    pub fn describe(self) -> String {
+        match self {
+            DensityLaw::Polynomial { power } => {
+                format!("polynomial (1 − d)^{power} + {DENSITY_FLOOR}")
+            }
+            DensityLaw::Gaussian { width } => {
+                format!("Gaussian exp(−d²/(2·{width}²)) + {DENSITY_FLOOR}")
+            }
+        }
+    }
+
     fn weight(self, d: f64) -> f64 {
         let d = d.clamp(0.0, 1.0);
         DENSITY_FLOOR

@@ -663,7 +663,7 @@ pub fn settle_extent(
     if !basal.is_empty() {
         seg.notes.push(format!(
             "basal rule: {} slice-frames stopped where the blood pool was less than {:.0} % \
-             surrounded by myocardium (slices {})",
+             surrounded by myocardium ({})",
             basal.len(),
             100.0 * params.extent.min_cover,
             slice_list(&basal)
@@ -671,7 +671,7 @@ pub fn settle_extent(
     }
     if !apex.is_empty() {
         seg.notes.push(format!(
-            "apex stop: {} slice-frames stopped where the cavity shrank below {} px (slices {})",
+            "apex stop: {} slice-frames stopped where the cavity shrank below {} px ({})",
             apex.len(),
             params.extent.apex_min_px,
             slice_list(&apex)
@@ -681,11 +681,10 @@ pub fn settle_extent(
     Ok(())
 }
 
-/// The distinct slices of `(frame, slice)` pairs, listed.
+/// The distinct slices of `(frame, slice)` pairs, listed (`slice 2`, `slices 10, 11`).
 fn slice_list(at: &[(usize, usize)]) -> String {
     let set: std::collections::BTreeSet<usize> = at.iter().map(|&(_, s)| s).collect();
-    set.iter()
-        .map(usize::to_string)
-        .collect::<Vec<_>>()
-        .join(", ")
+    let list: Vec<String> = set.iter().map(usize::to_string).collect();
+    let noun = if list.len() == 1 { "slice" } else { "slices" };
+    format!("{noun} {}", list.join(", "))
 }
