@@ -36,6 +36,7 @@ pub mod normals;
 pub mod panels;
 pub mod phantom;
 pub mod pipeline;
+pub mod plan;
 pub mod recon;
 pub mod report;
 pub mod results;

@@ -1,29 +1,12 @@
 //! The real binary in fresh temporary folders: demo, simulate → measure, bad seeds, help.
 
 use std::path::Path;
-use std::process::{Command, Output};
 
 use cinegauge::tolerances::{EDV_REL_FULLY_SAMPLED, EF_PP_FULLY_SAMPLED};
 
 mod common;
 
-/// Runs the binary with `SOURCE_DATE_EPOCH` fixed (2025-12-02 UTC), so reports carry a fixed
-/// date and compare byte for byte.
-fn cinegauge(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_cinegauge"))
-        .env("SOURCE_DATE_EPOCH", "1764633600")
-        .args(args)
-        .output()
-        .expect("binary runs")
-}
-
-fn text(o: &Output) -> String {
-    format!(
-        "{}{}",
-        String::from_utf8_lossy(&o.stdout),
-        String::from_utf8_lossy(&o.stderr)
-    )
-}
+use common::{cinegauge, text};
 
 /// A small synthetic study (fast): 11 slices of 96×96 at 2 mm, 20 frames, 4 coils.
 fn simulate(dir: &Path) {
@@ -732,10 +715,16 @@ fn help_carries_the_caution_and_examples() {
         "{h}"
     );
     assert!(h.contains("Examples:"));
-    for cmd in ["demo", "simulate", "measure"] {
+    for cmd in ["demo", "simulate", "measure", "run", "status"] {
         let o = cinegauge(&[cmd, "--help"]);
         assert!(o.status.success(), "{cmd}");
         assert!(text(&o).contains("Example"), "{cmd} --help has an example");
+        // Help text is wrapped to the terminal: compare with the line breaks taken out.
+        let flat = text(&o).split_whitespace().collect::<Vec<_>>().join(" ");
+        assert!(
+            flat.contains("not for diagnostic use"),
+            "{cmd} --help carries the caution"
+        );
     }
     let o = cinegauge(&["measure", "--images"]);
     assert_eq!(o.status.code(), Some(2), "usage errors exit 2");

@@ -5,8 +5,8 @@ use std::path::PathBuf;
 use anyhow::Context;
 use clap::Args;
 
-use super::progress::{say, Progress};
-use cinegauge::{demo, io, report};
+use super::progress::say;
+use cinegauge::{demo, report};
 
 /// Arguments of `demo`.
 #[derive(Debug, Args)]
@@ -27,20 +27,17 @@ pub struct DemoArgs {
 
 pub fn run(a: DemoArgs, quiet: bool) -> anyhow::Result<()> {
     let started = std::time::Instant::now();
-    io::ensure_dir(&a.out).context("preparing the output folder")?;
-    let prog = Progress::new("demo", demo::subjects(a.rng_seed).len() as u64, quiet);
-    let panels = a.out.join("panels");
-    io::ensure_dir(&panels).context("preparing the panels folder")?;
-    let results = demo::run(a.rng_seed, Some(&panels), &|i, n, code| {
-        prog.step(i as u64, n as u64, code)
-    })
-    .context("running the demo study")?;
-    prog.finish();
-    results
-        .write(&a.out, "results")
-        .context("writing results")?;
-    let pdf = a.pdf.unwrap_or_else(|| a.out.join("report.pdf"));
-    report::write(&results, &pdf, Some(&panels)).context("writing the report")?;
+    let outcome = super::study::run_plan(&demo::plan(a.rng_seed), &a.out, quiet)
+        .context("running the demo study")?;
+    let results = outcome.results;
+    let pdf = match a.pdf {
+        Some(pdf) => {
+            let panels = a.out.join("panels");
+            report::write(&results, &pdf, Some(&panels)).context("writing the report")?;
+            pdf
+        }
+        None => a.out.join("report.pdf"),
+    };
     if !quiet {
         for r in &results.runs {
             let line = match &r.numbers {

@@ -9,6 +9,7 @@ mod progress;
 mod reconstruct;
 mod report;
 mod simulate;
+mod study;
 mod suggest;
 
 use clap::{Parser, Subcommand};
@@ -32,6 +33,7 @@ clinical practice, local regulations and the responsible physician.";
 const AFTER_HELP: &str = "\
 Examples:
   cinegauge demo --out cinegauge-demo
+  cinegauge run demo-studies/tidewater.toml --out tidewater --jobs 2
   cinegauge simulate --out sim --ef-pct 45 --rng-seed 7
   cinegauge reconstruct --kspace sim/kspace --pattern variable-density --accel 8 --method xf-sparse --out sim/xf-r8
   cinegauge measure --images sim/reference --seeds sim/seeds.toml --out sim/measured
@@ -45,6 +47,9 @@ pub struct Cli {
     /// Print nothing but errors.
     #[arg(long, global = true)]
     pub quiet: bool,
+    /// Worker threads (default: every core).
+    #[arg(long, global = true, value_name = "N")]
+    pub jobs: Option<usize>,
     /// What to do.
     #[command(subcommand)]
     pub command: Command,
@@ -73,6 +78,10 @@ pub enum Command {
     Agreement(agreement::AgreementArgs),
     /// Rebuild the sign-off PDF from a results file.
     Report(report::ReportArgs),
+    /// Run a study plan (TOML): every subject × pattern × R × method, stored and resumable.
+    Run(study::RunArgs),
+    /// Show which units of a study plan are done, failed or pending.
+    Status(study::StatusArgs),
 }
 
 /// Runs the parsed command.
@@ -81,6 +90,16 @@ pub enum Command {
 /// Whatever the command reports, with context naming the stage.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     let quiet = cli.quiet;
+    if let Some(n) = cli.jobs {
+        anyhow::ensure!(
+            n >= 1,
+            "--jobs: expected at least 1 worker thread, found {n}"
+        );
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build_global()
+            .map_err(|e| anyhow::anyhow!("--jobs {n}: {e}"))?;
+    }
     match cli.command {
         Command::Demo(a) => demo::run(a, quiet),
         Command::Simulate(a) => simulate::run(a, quiet),
@@ -92,5 +111,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::SuggestSeeds(a) => suggest::run(a, quiet),
         Command::Agreement(a) => agreement::run(a),
         Command::Report(a) => report::run(a, quiet),
+        Command::Run(a) => study::run(a, quiet),
+        Command::Status(a) => study::status(a),
     }
 }

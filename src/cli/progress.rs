@@ -56,3 +56,56 @@ pub fn say(quiet: bool, msg: &str) {
         eprintln!("{msg}");
     }
 }
+
+/// The stage on display: its name, its display, and the last count and message shown.
+type Stage = (String, Progress, (u64, String));
+
+/// Progress over named stages: a new stage name ends the previous stage's display. Plain
+/// log lines are printed only when the count or the message changes.
+pub struct Stages {
+    quiet: bool,
+    current: std::sync::Mutex<Option<Stage>>,
+}
+
+impl Stages {
+    /// Progress for a run, silent with `quiet`.
+    pub fn new(quiet: bool) -> Self {
+        Stages {
+            quiet,
+            current: std::sync::Mutex::new(None),
+        }
+    }
+
+    /// Stage `stage` is at `done` of `total`, working on `msg`.
+    pub fn update(&self, stage: &str, done: usize, total: usize, msg: &str) {
+        let Ok(mut cur) = self.current.lock() else {
+            return;
+        };
+        if cur.as_ref().is_none_or(|(s, _, _)| s != stage) {
+            if let Some((_, p, _)) = cur.take() {
+                p.finish();
+            }
+            *cur = Some((
+                stage.to_string(),
+                Progress::new(stage, total as u64, self.quiet),
+                (u64::MAX, String::new()),
+            ));
+        }
+        if let Some((_, p, last)) = cur.as_mut() {
+            let now = (done as u64, msg.to_string());
+            if *last != now && !msg.is_empty() {
+                p.step(done as u64, total as u64, msg);
+                *last = now;
+            }
+        }
+    }
+
+    /// Ends the last stage's display.
+    pub fn finish(&self) {
+        if let Ok(mut cur) = self.current.lock() {
+            if let Some((_, p, _)) = cur.take() {
+                p.finish();
+            }
+        }
+    }
+}

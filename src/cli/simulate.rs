@@ -14,7 +14,7 @@ use cinegauge::simulate;
 #[command(
     after_help = "Example:\n  cinegauge simulate --out sim --edv-ml 180 --ef-pct 45 --rng-seed 7\n\n\
 Writes DIR/kspace/ (slice_NN.npy + geometry.json), DIR/reference/ (images.npy + geometry.json), \
-DIR/truth.json and DIR/seeds.toml."
+DIR/truth.json and DIR/seeds.toml. Synthetic data for research and protocol evaluation; not for diagnostic use."
 )]
 pub struct SimulateArgs {
     /// Output folder (created if needed).

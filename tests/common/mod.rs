@@ -118,3 +118,22 @@ pub fn reference_stack(ph: &cinegauge::phantom::Phantom) -> ndarray::Array4<f32>
         .stack
         .expect("stack")
 }
+
+/// Runs the binary with `SOURCE_DATE_EPOCH` fixed (2025-12-02 UTC), so reports carry a fixed
+/// date and compare byte for byte.
+pub fn cinegauge(args: &[&str]) -> std::process::Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_cinegauge"))
+        .env("SOURCE_DATE_EPOCH", "1764633600")
+        .args(args)
+        .output()
+        .expect("binary runs")
+}
+
+/// Standard output and error of a finished command, as text.
+pub fn text(o: &std::process::Output) -> String {
+    format!(
+        "{}{}",
+        String::from_utf8_lossy(&o.stdout),
+        String::from_utf8_lossy(&o.stderr)
+    )
+}

@@ -1,5 +1,13 @@
 //! The chain for one subject: k-space → undersample → reconstruct → segment → measure →
-//! result row. Stages are called in this order only.
+//! result row. Stages are called in this order only. A study plan runs as independent,
+//! stored work units ([`units`], [`store`], [`execute`]) and one gathering step ([`gather`]);
+//! [`study`] runs and reports on a whole plan.
+
+pub mod execute;
+pub mod gather;
+pub mod store;
+pub mod study;
+pub mod units;
 
 use ndarray::{s, Array4, ArrayView4};
 use num_complex::Complex32;

@@ -1,0 +1,279 @@
+//! Study plans: every refusal names the file, line and key; a run killed with SIGKILL and
+//! started again gives the same `results.json` bytes as an uninterrupted run; a finished plan
+//! reruns nothing; a changed parameter reruns only its method's units.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use cinegauge::plan;
+
+mod common;
+use common::{cinegauge, text};
+
+fn bin() -> PathBuf {
+    PathBuf::from(env!("CARGO_BIN_EXE_cinegauge"))
+}
+
+/// A small synthetic plan (two methods at one R, three subjects: a few seconds per run).
+const TINY: &str = r#"
+[study]
+code = "tiny"
+rng_seed = 3
+
+[synthetic]
+slices = 12
+slice_thickness_mm = 8.0
+slice_gap_mm = 2.0
+pixel_mm = 2.5
+rows = 64
+cols = 64
+frames = 12
+coils = 4
+
+[[subject]]
+code = "T-1"
+phantom = { edv_ml = 120.0, ef_pct = 58.0, heart_rate_bpm = 70.0, snr = 30.0 }
+
+[[subject]]
+code = "T-2"
+phantom = { edv_ml = 150.0, ef_pct = 40.0, heart_rate_bpm = 80.0, snr = 30.0 }
+
+[[subject]]
+code = "T-3"
+phantom = { edv_ml = 200.0, ef_pct = 30.0, heart_rate_bpm = 85.0, snr = 30.0 }
+
+[sampling]
+patterns = ["variable-density"]
+accelerations = [3]
+acs_lines = 10
+
+[methods]
+zero-filled = {}
+cg-sense = { iterations = 10 }
+"#;
+
+fn write_plan(dir: &Path, text: &str) -> PathBuf {
+    let p = dir.join("plan.toml");
+    std::fs::write(&p, text).unwrap();
+    p
+}
+
+fn run_log(out: &Path) -> serde_json::Value {
+    serde_json::from_slice(&std::fs::read(out.join("run-log.json")).unwrap()).unwrap()
+}
+
+/// Parses `text` as a plan in `dir`, expecting a refusal; returns it.
+fn refused(dir: &Path, text: &str) -> plan::PlanError {
+    match plan::parse(text, "plan.toml", dir) {
+        Ok(_) => panic!("plan accepted:\n{text}"),
+        Err(e) => e,
+    }
+}
+
+#[test]
+fn bad_plans_are_refused_naming_line_and_key() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    // Unknown key: the parser names it and its line (line 4 of the text below).
+    let e = refused(d, &TINY.replace("rows = 64", "rows = 64\nmatrix_size = 64"));
+    assert!(e.message.contains("matrix_size"), "{e}");
+    assert_eq!(
+        e.line,
+        Some(TINY.lines().position(|l| l == "rows = 64").unwrap() + 2)
+    );
+    // Missing file, named with its key and line.
+    let missing = TINY.replace(
+        "phantom = { edv_ml = 120.0, ef_pct = 58.0, heart_rate_bpm = 70.0, snr = 30.0 }",
+        "kspace = \"nowhere/kspace\"\nseeds = \"nowhere/seeds.toml\"",
+    );
+    let e = refused(d, &missing);
+    assert_eq!(e.key, "subject[1].seeds", "{e}");
+    assert!(
+        e.message.contains("does not exist") && e.line.is_some(),
+        "{e}"
+    );
+    // Duplicate subject code.
+    let e = refused(d, &TINY.replace("code = \"T-2\"", "code = \"T-1\""));
+    assert_eq!(e.key, "subject[2].code", "{e}");
+    assert!(e.message.contains("duplicate"), "{e}");
+    let dup_line = TINY.lines().position(|l| l == "code = \"T-2\"").unwrap() + 1;
+    assert_eq!(e.line, Some(dup_line));
+    // A method that does not exist.
+    let e = refused(d, &TINY.replace("zero-filled = {}", "zero-filed = {}"));
+    assert_eq!(e.key, "methods.zero-filed", "{e}");
+    // A method parameter that does not exist.
+    let e = refused(d, &TINY.replace("iterations = 10", "iteration = 10"));
+    assert_eq!(e.key, "methods.cg-sense", "{e}");
+    assert!(e.message.contains("iteration"), "{e}");
+    // A criterion on a quantity that is not computed.
+    let crit = format!(
+        "{TINY}\n[[criterion]]\nquantity = \"lvmass_g\"\nunit = \"pct\"\nmeasure = \"abs_bias\"\nlimit = 5.0\n"
+    );
+    let e = refused(d, &crit);
+    assert_eq!(e.key, "criterion[1].quantity", "{e}");
+    assert!(e.message.contains("lvmass_g"), "{e}");
+    // An acceleration the pattern cannot take.
+    let e = refused(
+        d,
+        &TINY.replace("accelerations = [3]", "accelerations = [30]"),
+    );
+    assert_eq!(e.key, "sampling.accelerations", "{e}");
+    // The binary refuses before any work: non-zero exit, the file and key in the message,
+    // no output folder made.
+    let p = write_plan(d, &TINY.replace("zero-filled = {}", "zero-filed = {}"));
+    let out = d.join("out");
+    let o = cinegauge(&["run", p.to_str().unwrap(), "--out", out.to_str().unwrap()]);
+    assert!(!o.status.success());
+    let t = text(&o);
+    assert!(
+        t.contains("plan.toml:") && t.contains("methods.zero-filed"),
+        "{t}"
+    );
+    assert!(!t.contains("panicked"), "{t}");
+    assert!(!out.exists(), "nothing is written for a refused plan");
+}
+
+/// The templates are valid plans: the annotated one once its data exist (written by
+/// `simulate`), the minimal one run end to end.
+#[test]
+fn templates_are_valid_plans() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let minimal = std::fs::read_to_string(root.join("templates/plan-minimal.toml")).unwrap();
+    let annotated = std::fs::read_to_string(root.join("templates/plan-annotated.toml")).unwrap();
+    let sim = d.join("S01");
+    let o = cinegauge(&["simulate", "--out", sim.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    // The annotated plan names more data; lay out what it names from the simulated subject.
+    let data = d.join("data");
+    for s in ["S01", "S02"] {
+        std::fs::create_dir_all(data.join(s)).unwrap();
+        std::fs::copy(sim.join("seeds.toml"), data.join(s).join("seeds.toml")).unwrap();
+    }
+    std::fs::rename(sim.join("kspace"), data.join("S01/kspace")).unwrap();
+    for series in ["reference", "net-r8"] {
+        let to = data.join("S02").join(series);
+        std::fs::create_dir_all(&to).unwrap();
+        for f in std::fs::read_dir(sim.join("reference")).unwrap().flatten() {
+            std::fs::copy(f.path(), to.join(f.file_name())).unwrap();
+        }
+    }
+    let p = plan::parse(&annotated, "plan-annotated.toml", d).expect("annotated template");
+    assert_eq!(p.subjects.len(), 3);
+    assert_eq!(p.methods.len(), 5);
+    assert_eq!(p.sampling.specs.len(), 6, "2 patterns × 3 R");
+    assert_eq!(p.criteria.len(), 3);
+    // The minimal plan against the simulated subject, run for real.
+    std::fs::rename(data.join("S01/kspace"), sim.join("kspace")).unwrap();
+    let p = write_plan(d, &minimal);
+    let out = d.join("my-study");
+    let o = cinegauge(&["run", p.to_str().unwrap(), "--out", out.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", text(&o));
+    let v: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(out.join("results.json")).unwrap()).unwrap();
+    assert_eq!(
+        v["runs"].as_array().unwrap().len(),
+        3,
+        "reference + cg-sense at R 4, 8"
+    );
+    assert!(out.join("report.pdf").is_file());
+}
+
+/// Polls until `dir` holds at least `n` finished unit folders.
+fn wait_for_units(dir: &Path, n: usize, child: &mut std::process::Child) -> bool {
+    for _ in 0..6000 {
+        let done = std::fs::read_dir(dir)
+            .map(|l| {
+                l.flatten()
+                    .filter(|e| !e.file_name().to_string_lossy().starts_with('.'))
+                    .count()
+            })
+            .unwrap_or(0);
+        if done >= n {
+            return true;
+        }
+        if child.try_wait().unwrap().is_some() {
+            return false;
+        }
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    }
+    false
+}
+
+#[test]
+fn killed_run_resumes_to_identical_results_and_cache_reruns_only_what_changed() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    let p = write_plan(d, TINY);
+    let plan = p.to_str().unwrap();
+    // An uninterrupted run.
+    let clean = d.join("clean");
+    let o = cinegauge(&["run", plan, "--out", clean.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    assert!(o.stderr.is_empty(), "--quiet prints nothing: {}", text(&o));
+    let expected = std::fs::read(clean.join("results.json")).unwrap();
+    assert_eq!(run_log(&clean)["computed"], 9);
+    // A run killed (SIGKILL) once the first subject's units are stored, then run again.
+    let resumed = d.join("resumed");
+    let mut child = Command::new(bin())
+        .args(["run", plan, "--out", resumed.to_str().unwrap(), "--quiet"])
+        .spawn()
+        .unwrap();
+    let mid = wait_for_units(&resumed.join("units"), 3, &mut child);
+    child.kill().unwrap();
+    child.wait().unwrap();
+    assert!(mid, "the run ended before it could be killed mid-way");
+    assert!(
+        !resumed.join("results.json").exists(),
+        "killed before gathering"
+    );
+    let o = cinegauge(&["status", plan, "--out", resumed.to_str().unwrap()]);
+    let t = text(&o);
+    assert!(t.contains("pending") && t.contains("done"), "{t}");
+    let o = cinegauge(&["run", plan, "--out", resumed.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", text(&o));
+    let log = run_log(&resumed);
+    assert!(log["reused"].as_u64().unwrap() >= 3, "{log}");
+    assert_eq!(
+        std::fs::read(resumed.join("results.json")).unwrap(),
+        expected,
+        "resumed results differ from an uninterrupted run"
+    );
+    // A finished plan: nothing recomputed, same bytes.
+    let o = cinegauge(&["run", plan, "--out", clean.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    assert_eq!(run_log(&clean)["computed"], 0);
+    assert_eq!(std::fs::read(clean.join("results.json")).unwrap(), expected);
+    // One method's parameter changed: only its three units (one per subject) rerun.
+    write_plan(d, &TINY.replace("iterations = 10", "iterations = 12"));
+    let o = cinegauge(&["run", plan, "--out", clean.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    let log = run_log(&clean);
+    assert_eq!(log["computed"], 3, "{log}");
+    let rerun: Vec<&str> = log["units"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|u| u["outcome"] == "computed")
+        .map(|u| u["unit"].as_str().unwrap())
+        .collect();
+    assert!(rerun.iter().all(|u| u.contains("cg-sense")), "{rerun:?}");
+    // A method added: only its units computed.
+    write_plan(
+        d,
+        &TINY.replace(
+            "iterations = 10 }",
+            "iterations = 12 }\nxf-sparse = { iterations = 5 }",
+        ),
+    );
+    let o = cinegauge(&["run", plan, "--out", clean.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    assert_eq!(run_log(&clean)["computed"], 3);
+    // Status as JSON: every unit done.
+    let o = cinegauge(&["status", plan, "--out", clean.to_str().unwrap(), "--json"]);
+    let list: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let list = list.as_array().unwrap();
+    assert_eq!(list.len(), 12);
+    assert!(list.iter().all(|u| u["state"] == "done"), "{list:?}");
+}
