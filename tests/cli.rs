@@ -110,6 +110,31 @@ fn demo_writes_three_files_and_reference_runs_meet_tolerances() {
             );
         }
     }
+    // The demo is the plan in demo-studies/: `status` on that file finds every unit stored,
+    // and lists each failed one with its reason (zero-filling loses the LV at high R).
+    let plan = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-studies/tidewater.toml");
+    let o = cinegauge(&[
+        "status",
+        plan.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--json",
+    ]);
+    assert!(o.status.success(), "{}", text(&o));
+    let list: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let list = list.as_array().unwrap();
+    assert_eq!(list.len(), 39);
+    for (u, r) in list.iter().zip(runs) {
+        let expected = if r["status"] == "ok" {
+            "done"
+        } else {
+            "failed"
+        };
+        assert_eq!(u["state"], expected, "{u}");
+        if expected == "failed" {
+            assert_eq!(u["message"], r["messages"][0], "the stored reason");
+        }
+    }
     let csv = std::fs::read_to_string(out.join("results.csv")).unwrap();
     assert!(
         csv.starts_with("# Research use"),
