@@ -178,6 +178,67 @@ fn templates_are_valid_plans() {
         "reference + cg-sense at R 4, 8"
     );
     assert!(out.join("report.pdf").is_file());
+
+    // Image series given per method: an external series identical to the reference measures
+    // the same, and a slice-spacing override scales every volume by its ratio (method of
+    // discs, V = Σ area × spacing: doubling the spacing doubles EDV and ESV, EF unchanged).
+    let series_plan = r#"
+[study]
+code = "given-series"
+
+[[subject]]
+code = "G-1"
+seeds = "S01/seeds.toml"
+[[subject.series]]
+method = "reference"
+path = "S01/reference"
+[[subject.series]]
+method = "external:copy"
+pattern = "variable-density"
+accel = 6
+accel_effective = 5.2
+path = "S01/reference"
+
+[[subject]]
+code = "G-2"
+seeds = "S01/seeds.toml"
+geometry = { slice_spacing_mm = 20.0 }
+[[subject.series]]
+method = "reference"
+path = "S01/reference"
+
+[outputs]
+pdf = false
+panels = false
+"#;
+    let p = d.join("series.toml");
+    std::fs::write(&p, series_plan).unwrap();
+    let out = d.join("given");
+    let o = cinegauge(&["run", p.to_str().unwrap(), "--out", out.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", text(&o));
+    assert!(!out.join("report.pdf").exists(), "outputs.pdf = false");
+    let v: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(out.join("results.json")).unwrap()).unwrap();
+    let runs = v["runs"].as_array().unwrap();
+    assert_eq!(runs.len(), 3);
+    let (r, ext, spaced) = (&runs[0], &runs[1], &runs[2]);
+    assert_eq!(ext["method"], "external:copy");
+    assert_eq!(ext["accel_effective"], 5.2);
+    assert_eq!(r["ef_pct"], ext["ef_pct"], "same images, same EF");
+    let sidecar: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(sim.join("reference/geometry.json")).unwrap())
+            .unwrap();
+    let ratio = 20.0 / sidecar["slice_spacing_mm"].as_f64().unwrap();
+    for q in ["edv_ml", "esv_ml"] {
+        let (a, b) = (r[q].as_f64().unwrap(), spaced[q].as_f64().unwrap());
+        // Only the rounding of the two sums of products differs.
+        assert!((b / a - ratio).abs() < 1e-9, "{q}: {b} / {a} vs {ratio}");
+    }
+    let (ea, eb) = (
+        r["ef_pct"].as_f64().unwrap(),
+        spaced["ef_pct"].as_f64().unwrap(),
+    );
+    assert!((ea - eb).abs() < 1e-9, "EF {ea} vs {eb}");
 }
 
 /// Polls until `dir` holds at least `n` finished unit folders.
