@@ -25,6 +25,7 @@
 pub mod acceptance;
 pub mod agreement;
 pub mod agreement_table;
+pub mod blind;
 pub mod caution;
 pub mod demo;
 pub mod fft;

@@ -485,3 +485,34 @@ fn fidelity_of_identical_and_shifted_series() {
         "HD95 of a one-pixel shift",
     );
 }
+
+/// Weighted kappa (Cohen 1968) against scikit-learn's `cohen_kappa_score` with labels 1..5
+/// (fixture `kappa.json`, made by `make_kappa_fixture.py`). Tolerance 1e-12: the same sums
+/// in a different order.
+#[test]
+fn weighted_kappa_matches_scikit_learn() {
+    use cinegauge::stats::kappa::{weighted_kappa, Weights};
+    let path =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/stats/kappa.json");
+    let f: Value = serde_json::from_slice(&std::fs::read(path).unwrap()).unwrap();
+    let cases = f["cases"].as_array().unwrap();
+    assert_eq!(cases.len(), 4);
+    for c in cases {
+        let col = |k: &str| -> Vec<u32> {
+            c[k].as_array()
+                .unwrap()
+                .iter()
+                .map(|v| v.as_u64().unwrap() as u32)
+                .collect()
+        };
+        let (a, b) = (col("a"), col("b"));
+        for (w, key) in [
+            (Weights::Linear, "linear"),
+            (Weights::Quadratic, "quadratic"),
+        ] {
+            let k = weighted_kappa(&a, &b, (1, 5), w).unwrap();
+            let expected = c[key].as_f64().unwrap();
+            assert!((k - expected).abs() < 1e-12, "{key}: {k} vs {expected}");
+        }
+    }
+}

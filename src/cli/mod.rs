@@ -1,6 +1,7 @@
 //! Command-line interface: argument definitions and the commands they run.
 
 mod agreement;
+mod blind;
 mod demo;
 mod inspect;
 mod listing;
@@ -82,6 +83,8 @@ pub enum Command {
     Run(study::RunArgs),
     /// Show which units of a study plan are done, failed or pending.
     Status(study::StatusArgs),
+    /// Prepare blinded, de-identified reader-study packages from a study that has been run.
+    Blind(blind::BlindArgs),
 }
 
 /// Runs the parsed command.
@@ -113,5 +116,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Report(a) => report::run(a, quiet),
         Command::Run(a) => study::run(a, quiet),
         Command::Status(a) => study::status(a),
+        Command::Blind(a) => blind::run(a, quiet),
     }
 }

@@ -234,6 +234,47 @@ pub fn render(results: &ResultsFile, panels: Option<&Path>) -> Vec<u8> {
     }
     pages.push(page);
     pages.extend(provenance::provenance_pages(results));
+    finish(doc, pages)
+}
+
+/// A plain text document (title, then headed sections of paragraphs) in the report's
+/// fonts, page layout, footer and caution: for sheets handed to people, such as reader
+/// instructions. Deterministic.
+pub fn text_document(title: &str, sections: &[(&str, Vec<String>)]) -> Vec<u8> {
+    let mut doc = PdfDocument::new(title);
+    fonts::register(&mut doc);
+    let mut pages = vec![];
+    let mut page = Page::default();
+    let mut y = MARGIN + 4.0;
+    page.text(MARGIN, y, 15.0, Weight::Bold, title);
+    y += 8.0;
+    y = caution_box(&mut page, y) + 6.0;
+    for (heading, paragraphs) in sections {
+        if y > PAGE_H - MARGIN - 25.0 {
+            pages.push(std::mem::take(&mut page));
+            y = MARGIN + 2.0;
+        }
+        page.text(MARGIN, y, 11.0, Weight::Bold, heading);
+        y += 5.5;
+        for para in paragraphs {
+            for line in wrap(para, 9.5, TEXT_W) {
+                if y > PAGE_H - MARGIN - 12.0 {
+                    pages.push(std::mem::take(&mut page));
+                    y = MARGIN + 2.0;
+                }
+                page.text(MARGIN, y, 9.5, Weight::Regular, &line);
+                y += 4.6;
+            }
+            y += 2.0;
+        }
+        y += 3.0;
+    }
+    pages.push(page);
+    finish(doc, pages)
+}
+
+/// The PDF bytes of `pages`, each with the footer (caution and page number).
+fn finish(mut doc: PdfDocument, pages: Vec<Page>) -> Vec<u8> {
     let total = pages.len();
     let pdf_pages: Vec<PdfPage> = pages
         .into_iter()

@@ -8,6 +8,7 @@ pub mod concordance;
 pub mod dist;
 pub mod icc;
 pub mod image_quality;
+pub mod kappa;
 pub mod overlap;
 pub mod paired;
 pub mod sample_size;
