@@ -52,12 +52,12 @@ impl Criterion {
         let q = label(&self.quantity);
         let u = unit_text(&self.unit);
         match self.measure {
-            Measure::AbsBias => format!("{q} bias within ±{}{u}", trim(self.limit)),
+            Measure::AbsBias => format!("{q} bias within ±{}{u}", plain_number(self.limit)),
             Measure::LimitsWithin => {
-                format!("{q} 95 % limits within ±{}{u}", trim(self.limit))
+                format!("{q} 95 % limits within ±{}{u}", plain_number(self.limit))
             }
-            Measure::IccAtLeast => format!("{q} ICC(A,1) at least {}", trim(self.limit)),
-            Measure::CccAtLeast => format!("{q} CCC at least {}", trim(self.limit)),
+            Measure::IccAtLeast => format!("{q} ICC(A,1) at least {}", plain_number(self.limit)),
+            Measure::CccAtLeast => format!("{q} CCC at least {}", plain_number(self.limit)),
         }
     }
 }
@@ -85,7 +85,8 @@ fn unit_text(unit: &str) -> &'static str {
     }
 }
 
-fn trim(v: f64) -> String {
+/// A number without trailing zeros (`2`, `2.5`, `0.125`), at most three decimals.
+pub fn plain_number(v: f64) -> String {
     let s = format!("{v:.3}");
     s.trim_end_matches('0').trim_end_matches('.').to_string()
 }

@@ -276,3 +276,226 @@ fn blinded_packages_carry_no_identifiers_and_no_design() {
     assert!(!o.status.success());
     assert!(text(&o).contains("not empty"), "{}", text(&o));
 }
+
+/// `unblind` on sheets filled in by a rule whose statistics are known by construction:
+/// every reader gives the reference 5, cg-sense 4 and zero-filled 3 on every item (medians
+/// exactly those, quadratic-weighted kappa 1 for every pair), and reports EF as the tool's EF
+/// plus 0, +1 or −1 pp, reader 3 leaning by subject (bias against the automated EF exactly 0;
+/// against the reference, offsets and lean cancel, so the bias equals the mean of the tool's
+/// own EF changes). Broken sheets
+/// are refused naming the row and column.
+#[test]
+fn unblind_joins_sheets_and_refuses_bad_cells() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    let plan_text = PLAN.split("[[subject]]").next().unwrap().to_string()
+        + r#"
+[[subject]]
+code = "U-1"
+phantom = { edv_ml = 140.0, ef_pct = 52.0, heart_rate_bpm = 70.0, snr = 30.0 }
+[[subject]]
+code = "U-2"
+phantom = { edv_ml = 170.0, ef_pct = 40.0, heart_rate_bpm = 75.0, snr = 30.0 }
+[[subject]]
+code = "U-3"
+phantom = { edv_ml = 120.0, ef_pct = 60.0, heart_rate_bpm = 65.0, snr = 30.0 }
+
+[sampling]
+patterns = ["variable-density"]
+accelerations = [3]
+acs_lines = 10
+
+[methods]
+zero-filled = {}
+cg-sense = { iterations = 10 }
+
+[outputs]
+pdf = false
+panels = false
+"#;
+    let plan = d.join("plan.toml");
+    std::fs::write(&plan, plan_text).unwrap();
+    let run = d.join("run");
+    let o = cinegauge(&[
+        "run",
+        plan.to_str().unwrap(),
+        "--out",
+        run.to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert!(o.status.success(), "{}", text(&o));
+    let rs = d.join("rs");
+    let o = cinegauge(&[
+        "blind",
+        plan.to_str().unwrap(),
+        "--from",
+        run.to_str().unwrap(),
+        "--readers",
+        "3",
+        "--out",
+        rs.to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert!(o.status.success(), "{}", text(&o));
+    let key = std::fs::read_to_string(rs.join("unblinding-key.csv")).unwrap();
+    let key: Vec<Vec<String>> = key
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .skip(1)
+        .map(|l| l.split(',').map(String::from).collect())
+        .collect();
+    let results: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(run.join("results.json")).unwrap()).unwrap();
+    let auto_ef = |k: &[String]| -> f64 {
+        results["runs"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|r| r["subject"] == k[1].as_str() && r["method"] == k[2].as_str())
+            .unwrap()["ef_pct"]
+            .as_f64()
+            .unwrap()
+    };
+    let returned = d.join("returned");
+    std::fs::create_dir_all(&returned).unwrap();
+    let mut sheets = Vec::new();
+    for (r, offset) in [(1, 0.0), (2, 1.0), (3, -1.0)] {
+        let name = format!("reader-{r:02}-scores.csv");
+        let blank = std::fs::read_to_string(rs.join(&name)).unwrap();
+        let mut lines = blank.lines();
+        let mut filled = format!("{}\n", lines.next().unwrap());
+        for l in lines {
+            let code = l.split(',').next().unwrap();
+            let k = key.iter().find(|k| k[0] == code).unwrap();
+            let score = match k[2].as_str() {
+                "reference" => 5,
+                "cg-sense" => 4,
+                _ => 3,
+            };
+            // Reader 3 also leans by subject (−0.5, 0, +0.5 pp), so the readers' EF is not
+            // purely additive (the ICC needs residual spread); within one method the lean
+            // sums to zero over the subjects, and it cancels against the same subject's
+            // reference case.
+            let lean = if r == 3 {
+                match k[1].as_str() {
+                    "U-1" => -0.5,
+                    "U-2" => 0.0,
+                    _ => 0.5,
+                }
+            } else {
+                0.0
+            };
+            filled.push_str(&format!(
+                "{code},{score},{score},{score},{score},,,{:.6},looked fine, mostly\n",
+                auto_ef(k) + offset + lean
+            ));
+        }
+        let p = returned.join(&name);
+        std::fs::write(&p, filled).unwrap();
+        sheets.push(p);
+    }
+    let mut args = vec![
+        "unblind".to_string(),
+        rs.to_str().unwrap().into(),
+        "--key".into(),
+        rs.join("unblinding-key.csv").to_str().unwrap().into(),
+        "--results".into(),
+        run.join("results.json").to_str().unwrap().into(),
+        "--sheets".into(),
+    ];
+    args.extend(sheets.iter().map(|p| p.to_str().unwrap().to_string()));
+    let argv: Vec<&str> = args.iter().map(String::as_str).collect();
+    let o = cinegauge(&argv);
+    assert!(o.status.success(), "{}", text(&o));
+    let v: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(rs.join("reader-study.json")).unwrap()).unwrap();
+    assert!(rs.join("reader-study.pdf").is_file());
+    assert_eq!(v["readers"], 3);
+    for c in v["conditions"].as_array().unwrap() {
+        let expected = match c["method"].as_str().unwrap() {
+            "reference" => 5.0,
+            "cg-sense" => 4.0,
+            _ => 3.0,
+        };
+        assert_eq!(c["cases"], 3);
+        for item in c["items"].as_array().unwrap() {
+            assert_eq!(item["median"].as_f64(), Some(expected));
+            assert_eq!(item["n"], 9, "3 cases × 3 readers");
+        }
+        let bias = c["ef_vs_automated"]["bias_pp"].as_f64().unwrap();
+        assert!(bias.abs() < 1e-6, "offsets 0, +1, −1 average to 0: {bias}");
+        if c["method"] != "reference" {
+            let method = c["method"].as_str().unwrap();
+            let mean_change = ["U-1", "U-2", "U-3"]
+                .iter()
+                .map(|s| {
+                    let find = |m: &str| {
+                        key.iter()
+                            .find(|k| k[1] == *s && k[2] == m)
+                            .map(|k| auto_ef(k))
+                            .unwrap()
+                    };
+                    find(method) - find("reference")
+                })
+                .sum::<f64>()
+                / 3.0;
+            let b = c["ef_vs_reference"]["bias_pp"].as_f64().unwrap();
+            assert!((b - mean_change).abs() < 1e-5, "{b} vs {mean_change}");
+        }
+    }
+    for k in v["kappa"].as_array().unwrap() {
+        assert_eq!(k["kappa"].as_f64(), Some(1.0), "{k}");
+    }
+    let icc = v["ef_icc_a1"]
+        .as_f64()
+        .unwrap_or_else(|| panic!("{}", v["ef_icc_note"]));
+    assert!(
+        icc > 0.9 && icc < 1.0,
+        "±1 pp reader offsets against a wide EF range: {icc}"
+    );
+
+    // Broken sheets: each refused, naming the row and the column.
+    let good = std::fs::read_to_string(&sheets[0]).unwrap();
+    let second_row = good.lines().nth(1).unwrap().to_string();
+    let code = second_row.split(',').next().unwrap().to_string();
+    let cases: [(String, &str, &str); 4] = [
+        (
+            good.replacen(&code, "KZZZZZZ", 1),
+            "row 2, column `case`",
+            "not a case",
+        ),
+        (format!("{good}{second_row}\n"), "column `case`", "twice"),
+        (
+            good.replacen(&format!("{code},4,"), &format!("{code},7,"), 1)
+                .replacen(&format!("{code},5,"), &format!("{code},7,"), 1)
+                .replacen(&format!("{code},3,"), &format!("{code},7,"), 1),
+            "row 2, column `overall_quality`",
+            "1 to 5",
+        ),
+        (
+            {
+                let mut f: Vec<String> = second_row.split(',').map(String::from).collect();
+                f[7] = "sixty".into();
+                good.replacen(&second_row, &f.join(","), 1)
+            },
+            "row 2, column `reader_ef_pct`",
+            "number",
+        ),
+    ];
+    for (i, (content, place, why)) in cases.iter().enumerate() {
+        let p = returned.join(format!("reader-0{}-scores.csv", i + 5));
+        std::fs::write(&p, content).unwrap();
+        let o = cinegauge(&[
+            "unblind",
+            rs.to_str().unwrap(),
+            "--key",
+            rs.join("unblinding-key.csv").to_str().unwrap(),
+            "--sheets",
+            p.to_str().unwrap(),
+        ]);
+        assert!(!o.status.success(), "case {i} accepted");
+        let t = text(&o);
+        assert!(t.contains(place) && t.contains(why), "case {i}: {t}");
+        assert!(!t.contains("panicked"), "{t}");
+    }
+}

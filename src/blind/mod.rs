@@ -11,6 +11,7 @@
 //! Nothing is copied from source headers, so no identifying value can pass through.
 
 pub mod cases;
+pub mod unblind;
 pub mod williams;
 
 use std::path::{Path, PathBuf};

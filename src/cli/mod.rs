@@ -85,6 +85,8 @@ pub enum Command {
     Status(study::StatusArgs),
     /// Prepare blinded, de-identified reader-study packages from a study that has been run.
     Blind(blind::BlindArgs),
+    /// Join returned reader score sheets with the key: scores, reader agreement, readers' EF.
+    Unblind(blind::UnblindArgs),
 }
 
 /// Runs the parsed command.
@@ -117,5 +119,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Run(a) => study::run(a, quiet),
         Command::Status(a) => study::status(a),
         Command::Blind(a) => blind::run(a, quiet),
+        Command::Unblind(a) => blind::unblind(a, quiet),
     }
 }
