@@ -454,6 +454,26 @@ panels = false
         "±1 pp reader offsets against a wide EF range: {icc}"
     );
 
+    // The sign-off report takes the reader study as a section of its own.
+    let pdf = d.join("signoff.pdf");
+    let o = cinegauge(&[
+        "report",
+        run.join("results.json").to_str().unwrap(),
+        "--reader-study",
+        rs.join("reader-study.json").to_str().unwrap(),
+        "--pdf",
+        pdf.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", text(&o));
+    if let Ok(o) = Command::new("pdftotext").arg(&pdf).arg("-").output() {
+        let t = String::from_utf8_lossy(&o.stdout);
+        let flat = t.split_whitespace().collect::<Vec<_>>().join(" ");
+        assert!(
+            flat.contains("Reader study") && flat.contains("quadratic-weighted kappa"),
+            "reader-study pages in the report"
+        );
+    }
+
     // Broken sheets: each refused, naming the row and the column.
     let good = std::fs::read_to_string(&sheets[0]).unwrap();
     let second_row = good.lines().nth(1).unwrap().to_string();

@@ -303,26 +303,26 @@ fn instructions_pdf(cases: usize) -> Vec<u8> {
         "Reader instructions",
         &[
             (
-                "What you receive",
+                "What you receive".into(),
                 vec![
                     format!("{cases} cases, each a folder under cases/ named by its case code. Each folder holds a short-axis cine image series (DICOM, one file per slice and frame; open the folder in any DICOM viewer) and preview.png, one slice through the cardiac cycle."),
                     "Your score sheet, reader-NN-scores.csv, lists the case codes in the order in which to read them. Please keep to that order and score each case before opening the next.".into(),
                 ],
             ),
             (
-                "What to score",
+                "What to score".into(),
                 std::iter::once("Give each item a whole number from 1 to 5:".to_string())
                     .chain(items)
                     .collect(),
             ),
             (
-                "Your own measurements",
+                "Your own measurements".into(),
                 vec![
                     "If the study asks for them, contour the left-ventricular blood pool at end-diastole and end-systole as you do in practice and enter reader_edv_ml, reader_esv_ml and reader_ef_pct (ml and percent, decimal point). Leave them empty otherwise. Use the comment column for anything that made a case hard to read.".into(),
                 ],
             ),
             (
-                "Blinding",
+                "Blinding".into(),
                 vec![
                     "Case codes are random. Please do not try to find out how a case was made, do not compare notes with other readers before all sheets are returned, and return the sheet unchanged apart from the score columns.".into(),
                 ],

@@ -6,7 +6,7 @@
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use super::{ITEMS, MEASURES};
 use crate::stats::bland_altman::{bland_altman, Options};
@@ -258,10 +258,10 @@ pub fn read_sheet(path: &Path, reader: usize, key: &[KeyRow]) -> Result<Vec<Scor
 }
 
 /// Distribution of one item for one method × R.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct ItemSummary {
     /// Item column.
-    pub item: &'static str,
+    pub item: String,
     /// Scores given.
     pub n: usize,
     /// How many 1s, 2s, … 5s.
@@ -271,10 +271,10 @@ pub struct ItemSummary {
 }
 
 /// Weighted kappa of one item for one pair of readers over the cases both scored.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PairKappa {
     /// Item column.
-    pub item: &'static str,
+    pub item: String,
     /// Reader numbers.
     pub readers: (usize, usize),
     /// Cases both scored.
@@ -287,7 +287,7 @@ pub struct PairKappa {
 }
 
 /// Bias and limits of agreement of readers' EF against another EF, in percentage points.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct EfAgreement {
     /// Pairs.
     pub n: usize,
@@ -303,7 +303,7 @@ pub struct EfAgreement {
 }
 
 /// Everything about one method × R.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct ConditionSummary {
     /// Method.
     pub method: String,
@@ -322,10 +322,10 @@ pub struct ConditionSummary {
 }
 
 /// The reader study's results.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct ReaderStudy {
     /// The caution every output carries.
-    pub caution: &'static str,
+    pub caution: String,
     /// Readers (sheets).
     pub readers: usize,
     /// Per method × R, in key order of first appearance.
@@ -412,7 +412,7 @@ pub fn analyse(
                     let mut counts = [0; 5];
                     vals.iter().for_each(|&v| counts[(v - 1) as usize] += 1);
                     ItemSummary {
-                        item,
+                        item: item.to_string(),
                         n: vals.len(),
                         counts,
                         median: median(vals),
@@ -473,7 +473,7 @@ pub fn analyse(
                 }
                 let r = weighted_kappa(&xa, &xb, (1, 5), Weights::Quadratic);
                 kappa.push(PairKappa {
-                    item,
+                    item: item.to_string(),
                     readers: (a, b),
                     n: xa.len(),
                     kappa: r.as_ref().ok().copied(),
@@ -493,7 +493,7 @@ pub fn analyse(
         Err(e) => (None, Some(e.to_string())),
     };
     ReaderStudy {
-        caution: crate::caution::CAUTION,
+        caution: crate::caution::CAUTION.into(),
         readers: readers.len(),
         conditions,
         kappa,
@@ -538,8 +538,16 @@ fn fmt_opt(v: Option<f64>, digits: usize) -> String {
     v.map_or_else(|| "–".into(), |x| format!("{x:.digits$}"))
 }
 
-/// The reader study as a PDF section (plain text in the report's layout).
+/// Title of the reader-study pages.
+pub const TITLE: &str = "Reader study";
+
+/// The reader study as a PDF of its own (the same pages `report --reader-study` adds).
 pub fn pdf(study: &ReaderStudy) -> Vec<u8> {
+    crate::report::text_document(TITLE, &sections(study))
+}
+
+/// The reader study as headed paragraphs.
+pub fn sections(study: &ReaderStudy) -> Vec<(String, Vec<String>)> {
     let label = |c: &ConditionSummary| {
         format!(
             "{} ({}), R = {}",
@@ -623,11 +631,9 @@ pub fn pdf(study: &ReaderStudy) -> Vec<u8> {
             }
         })
         .collect();
-    crate::report::text_document(
-        "Reader study",
-        &[
+    vec![
             (
-                "Scores per method and acceleration",
+                "Scores per method and acceleration".into(),
                 std::iter::once(format!(
                     "{} readers. Items scored 1 (worst) to 5 (best); counts of 1s/2s/3s/4s/5s in brackets.",
                     study.readers
@@ -635,12 +641,11 @@ pub fn pdf(study: &ReaderStudy) -> Vec<u8> {
                 .chain(scores)
                 .collect(),
             ),
-            ("Agreement between readers", agreement),
-            ("Readers' EF", efs),
+            ("Agreement between readers".into(), agreement),
+            ("Readers' EF".into(), efs),
             (
-                "Methods",
+                "Methods".into(),
                 vec!["Weighted kappa: Cohen J. Psychol Bull 1968;70:213–220 (quadratic weights). ICC(A,1): McGraw KO, Wong SP. Psychol Methods 1996;1:30–46. Limits of agreement: Bland JM, Altman DG. Lancet 1986;i:307–310. Reading order: Williams EJ. Aust J Sci Res A 1949;2:149–168.".into()],
             ),
-        ],
-    )
+    ]
 }

@@ -23,6 +23,9 @@ pub struct ReportArgs {
     /// Where to write the PDF (default: report.pdf beside the results file).
     #[arg(long, value_name = "FILE")]
     pub pdf: Option<PathBuf>,
+    /// Add the reader study's pages (reader-study.json written by `unblind`).
+    #[arg(long, value_name = "FILE")]
+    pub reader_study: Option<PathBuf>,
 }
 
 pub fn run(a: ReportArgs, quiet: bool) -> anyhow::Result<()> {
@@ -45,7 +48,23 @@ pub fn run(a: ReportArgs, quiet: bool) -> anyhow::Result<()> {
         .parent()
         .map(|d| d.join("panels"))
         .filter(|d| d.is_dir());
-    report::write(&results, &pdf, panels.as_deref()).context("writing the report")?;
+    let reader = match &a.reader_study {
+        Some(p) => {
+            let bytes = std::fs::read(p).with_context(|| format!("reading {}", p.display()))?;
+            let study: cinegauge::blind::unblind::ReaderStudy = serde_json::from_slice(&bytes)
+                .with_context(|| format!("{}: not a reader-study file", p.display()))?;
+            Some(cinegauge::blind::unblind::sections(&study))
+        }
+        None => None,
+    };
+    let bytes = report::render_with(
+        &results,
+        panels.as_deref(),
+        reader
+            .as_deref()
+            .map(|s| (cinegauge::blind::unblind::TITLE, s)),
+    );
+    cinegauge::io::write_atomic(&pdf, &bytes).context("writing the report")?;
     say(
         quiet,
         &format!(

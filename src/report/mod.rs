@@ -23,6 +23,15 @@ const ROW_H: f32 = 5.2;
 /// Builds the report's PDF bytes from a results file, with the image panels from `panels`
 /// when given. Deterministic: no clock is read.
 pub fn render(results: &ResultsFile, panels: Option<&Path>) -> Vec<u8> {
+    render_with(results, panels, None)
+}
+
+/// [`render`] with extra titled text pages (e.g. the reader study) before the provenance.
+pub fn render_with(
+    results: &ResultsFile,
+    panels: Option<&Path>,
+    extra: Option<(&str, &Sections)>,
+) -> Vec<u8> {
     let mut doc = PdfDocument::new(&format!("cinegauge report {}", results.study));
     fonts::register(&mut doc);
     let mut pages = vec![];
@@ -233,16 +242,27 @@ pub fn render(results: &ResultsFile, panels: Option<&Path>) -> Vec<u8> {
         y += 3.0;
     }
     pages.push(page);
+    if let Some((title, sections)) = extra {
+        pages.extend(text_pages(title, sections));
+    }
     pages.extend(provenance::provenance_pages(results));
     finish(doc, pages)
 }
 
+/// Headed sections of paragraphs, for [`text_document`] and extra report pages.
+pub type Sections = [(String, Vec<String>)];
+
 /// A plain text document (title, then headed sections of paragraphs) in the report's
 /// fonts, page layout, footer and caution: for sheets handed to people, such as reader
 /// instructions. Deterministic.
-pub fn text_document(title: &str, sections: &[(&str, Vec<String>)]) -> Vec<u8> {
+pub fn text_document(title: &str, sections: &Sections) -> Vec<u8> {
     let mut doc = PdfDocument::new(title);
     fonts::register(&mut doc);
+    finish(doc, text_pages(title, sections))
+}
+
+/// The pages of a titled text with the caution box under the title.
+fn text_pages(title: &str, sections: &Sections) -> Vec<Page> {
     let mut pages = vec![];
     let mut page = Page::default();
     let mut y = MARGIN + 4.0;
@@ -270,7 +290,7 @@ pub fn text_document(title: &str, sections: &[(&str, Vec<String>)]) -> Vec<u8> {
         y += 3.0;
     }
     pages.push(page);
-    finish(doc, pages)
+    pages
 }
 
 /// The PDF bytes of `pages`, each with the footer (caution and page number).
