@@ -152,6 +152,9 @@ pub struct ResultsFile {
     /// Verdicts against the declared acceptance criteria.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub acceptance: Option<Acceptance>,
+    /// Units of the plan left out of a partial gathering (empty: the study is complete).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub missing_units: Vec<String>,
 }
 
 impl ResultsFile {
@@ -176,6 +179,7 @@ impl ResultsFile {
             normal_ranges: None,
             agreement: Vec::new(),
             acceptance: None,
+            missing_units: Vec::new(),
         }
     }
 

@@ -338,3 +338,113 @@ fn killed_run_resumes_to_identical_results_and_cache_reruns_only_what_changed() 
     assert_eq!(list.len(), 12);
     assert!(list.iter().all(|u| u["state"] == "done"), "{list:?}");
 }
+
+fn unit_ids(dir: &Path) -> Vec<String> {
+    std::fs::read_to_string(dir.join("units.jsonl"))
+        .unwrap()
+        .lines()
+        .map(|l| {
+            serde_json::from_str::<serde_json::Value>(l).unwrap()["id"]
+                .as_str()
+                .unwrap()
+                .to_string()
+        })
+        .collect()
+}
+
+/// The cluster path without a scheduler: `split`, every `run-unit` (one of them twice at
+/// once), `gather` give the same results.json bytes as a local `run`; a missing unit is named
+/// by `gather` and `--partial` marks the results; unit ids survive adding a method.
+#[test]
+fn split_run_unit_gather_equals_run() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    let p = write_plan(d, TINY);
+    let plan = p.to_str().unwrap();
+    let local = d.join("local");
+    let o = cinegauge(&["run", plan, "--out", local.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    let expected = std::fs::read(local.join("results.json")).unwrap();
+
+    let cluster = d.join("cluster");
+    let c = cluster.to_str().unwrap();
+    let o = cinegauge(&["split", plan, "--out", c]);
+    assert!(o.status.success(), "{}", text(&o));
+    let ids = unit_ids(&cluster);
+    assert_eq!(ids.len(), 9);
+    let log_keys: Vec<String> = run_log(&local)["units"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|u| u["key"].as_str().unwrap().to_string())
+        .collect();
+    assert_eq!(ids, log_keys, "the cluster's units are the local run's");
+    let sbatch = std::fs::read_to_string(cluster.join("array.sbatch")).unwrap();
+    assert!(sbatch.contains("#SBATCH --array=0-8"), "{sbatch}");
+    assert!(sbatch.contains("run-unit") && sbatch.contains("$SLURM_ARRAY_TASK_ID"));
+    assert!(std::fs::read_to_string(cluster.join("submit.sh"))
+        .unwrap()
+        .contains("--dependency=afterany:"));
+
+    for i in (0..9).filter(|&i| i != 4) {
+        let o = cinegauge(&[
+            "run-unit",
+            plan,
+            "--index",
+            &i.to_string(),
+            "--out",
+            c,
+            "--quiet",
+        ]);
+        assert!(o.status.success(), "unit {i}: {}", text(&o));
+    }
+    // Unit 4 is missing: gather names it by id; --partial gathers the rest and says so.
+    let o = cinegauge(&["gather", plan, "--out", c, "--quiet"]);
+    assert!(!o.status.success());
+    assert!(text(&o).contains(&ids[4]), "{}", text(&o));
+    let o = cinegauge(&["gather", plan, "--out", c, "--partial", "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    let v: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(cluster.join("results.json")).unwrap()).unwrap();
+    assert_eq!(v["missing_units"].as_array().unwrap().len(), 1);
+    // Unit 4 by two processes at once: both succeed, one whole copy is stored.
+    let spawn = || {
+        Command::new(env!("CARGO_BIN_EXE_cinegauge"))
+            .args(["run-unit", plan, "--index", "4", "--out", c, "--quiet"])
+            .spawn()
+            .unwrap()
+    };
+    let (mut a, mut b) = (spawn(), spawn());
+    assert!(a.wait().unwrap().success() && b.wait().unwrap().success());
+    let o = cinegauge(&["gather", plan, "--out", c, "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    assert_eq!(
+        std::fs::read(cluster.join("results.json")).unwrap(),
+        expected,
+        "cluster path and local run differ"
+    );
+    let stored = std::fs::read_dir(cluster.join("units")).unwrap().count();
+    assert_eq!(stored, 9, "no partial copies left behind");
+
+    // A method added: every earlier id is still there, in the same order.
+    write_plan(
+        d,
+        &TINY.replace(
+            "iterations = 10 }",
+            "iterations = 10 }\nxf-sparse = { iterations = 5 }",
+        ),
+    );
+    let again = d.join("again");
+    let o = cinegauge(&["split", plan, "--out", again.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    let new_ids = unit_ids(&again);
+    assert_eq!(new_ids.len(), 12);
+    let kept: Vec<&String> = new_ids.iter().filter(|i| ids.contains(i)).collect();
+    assert_eq!(kept, ids.iter().collect::<Vec<_>>());
+    // A changed parameter: the old list's cg-sense unit (line 2) is no longer in the plan,
+    // and run-unit says so instead of running something else.
+    write_plan(d, &TINY.replace("iterations = 10", "iterations = 12"));
+    let o = cinegauge(&["run-unit", plan, "--index", "2", "--out", c]);
+    assert!(!o.status.success());
+    assert!(text(&o).contains("split again"), "{}", text(&o));
+}

@@ -2,6 +2,7 @@
 
 mod agreement;
 mod blind;
+mod cluster;
 mod demo;
 mod inspect;
 mod listing;
@@ -87,6 +88,12 @@ pub enum Command {
     Blind(blind::BlindArgs),
     /// Join returned reader score sheets with the key: scores, reader agreement, readers' EF.
     Unblind(blind::UnblindArgs),
+    /// Write a study's work units and Slurm array scripts for a cluster.
+    Split(cluster::SplitArgs),
+    /// Run one work unit (one Slurm array task).
+    RunUnit(cluster::RunUnitArgs),
+    /// Gather stored units into results and report (the cluster path's last job).
+    Gather(cluster::GatherArgs),
 }
 
 /// Runs the parsed command.
@@ -120,5 +127,8 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Status(a) => study::status(a),
         Command::Blind(a) => blind::run(a, quiet),
         Command::Unblind(a) => blind::unblind(a, quiet),
+        Command::Split(a) => cluster::split(a, quiet),
+        Command::RunUnit(a) => cluster::run_unit(a, quiet),
+        Command::Gather(a) => cluster::gather(a, quiet),
     }
 }

@@ -60,6 +60,28 @@ pub fn render_with(
     y += 6.0;
     y = caution_box(&mut page, y);
     y += 7.0;
+    if !results.missing_units.is_empty() {
+        let text = format!(
+            "Partial study: {} units were not available when these results were gathered and count as failed runs: {}.",
+            results.missing_units.len(),
+            results.missing_units.join("; ")
+        );
+        // Measured in the regular face, drawn in bold (a little wider): keep a margin.
+        let lines = wrap(&text, 8.5, TEXT_W - 16.0);
+        let h = 4.0 + 4.2 * lines.len() as f32;
+        page.fill_rect(
+            MARGIN,
+            y - 4.0,
+            PAGE_W - 2.0 * MARGIN,
+            h,
+            rgb(0.98, 0.86, 0.86),
+        );
+        for l in lines {
+            page.text(MARGIN + 4.0, y, 8.5, Weight::Bold, &l);
+            y += 4.2;
+        }
+        y += 5.0;
+    }
 
     let subjects: std::collections::BTreeSet<&str> =
         results.runs.iter().map(|r| r.subject.as_str()).collect();
