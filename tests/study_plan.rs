@@ -448,3 +448,86 @@ fn split_run_unit_gather_equals_run() {
     assert!(!o.status.success());
     assert!(text(&o).contains("split again"), "{}", text(&o));
 }
+
+/// Waits until none of `jobs` is queued or running (Slurm's `squeue`), at most `secs`.
+fn wait_for_jobs(jobs: &[&str], secs: u64) {
+    for _ in 0..secs * 2 {
+        let o = Command::new("squeue")
+            .args(["-h", "-o", "%i", "-j", &jobs.join(",")])
+            .output()
+            .expect("squeue runs");
+        if String::from_utf8_lossy(&o.stdout).trim().is_empty() {
+            return;
+        }
+        std::thread::sleep(std::time::Duration::from_millis(500));
+    }
+    panic!("Slurm jobs {jobs:?} still queued or running after {secs} s");
+}
+
+/// The cluster path on a real single-node Slurm (started by `.ci/slurm-up`, which `.ci/run`
+/// calls; run with `--ignored` and SLURM_CONF set): the array job and the dependent gather
+/// job give results.json byte-identical to a local `run`. A task that ended without storing
+/// its unit (its folder removed, as after a task killed before its rename): `gather` names
+/// the unit, and re-submitting just that array index completes the study. Fails loudly when
+/// Slurm is not there.
+#[test]
+#[ignore = "needs a running Slurm (.ci/slurm-up); .ci/run runs it"]
+fn slurm_array_job_equals_local_run() {
+    assert!(
+        std::env::var_os("SLURM_CONF").is_some(),
+        "SLURM_CONF is not set: start Slurm with .ci/slurm-up"
+    );
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    let p = write_plan(d, TINY);
+    let plan = p.to_str().unwrap();
+    let local = d.join("local");
+    let o = cinegauge(&["run", plan, "--out", local.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    let expected = std::fs::read(local.join("results.json")).unwrap();
+    let cluster = d.join("cluster");
+    let c = cluster.to_str().unwrap();
+    let o = cinegauge(&["split", plan, "--out", c, "--cpus", "1", "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    let o = Command::new("bash")
+        .arg(cluster.join("submit.sh"))
+        .output()
+        .expect("bash runs");
+    assert!(o.status.success(), "sbatch failed: {}", text(&o));
+    let ids = String::from_utf8_lossy(&o.stdout).trim().to_string();
+    let jobs: Vec<&str> = ids.split_whitespace().collect();
+    assert_eq!(jobs.len(), 2, "array and gather job ids: {ids}");
+    wait_for_jobs(&jobs, 240);
+    let gathered = std::fs::read(cluster.join("results.json")).unwrap_or_else(|_| {
+        let log = std::fs::read_to_string(cluster.join("slurm/gather.log")).unwrap_or_default();
+        panic!("the gather job wrote no results: {log}")
+    });
+    assert!(
+        gathered == expected,
+        "Slurm results differ from the local run"
+    );
+
+    // A task whose unit never got stored: gather names it; re-submitting index 4 completes.
+    let ids4 = unit_ids(&cluster)[4].clone();
+    std::fs::remove_dir_all(cluster.join("units").join(&ids4)).unwrap();
+    let o = cinegauge(&["gather", plan, "--out", c, "--quiet"]);
+    assert!(
+        !o.status.success() && text(&o).contains(&ids4),
+        "{}",
+        text(&o)
+    );
+    let o = Command::new("sbatch")
+        .args(["--parsable", "--array=4"])
+        .arg(cluster.join("array.sbatch"))
+        .output()
+        .expect("sbatch runs");
+    assert!(o.status.success(), "{}", text(&o));
+    let job = String::from_utf8_lossy(&o.stdout).trim().to_string();
+    wait_for_jobs(&[job.split(';').next().unwrap()], 120);
+    let o = cinegauge(&["gather", plan, "--out", c, "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    assert!(
+        std::fs::read(cluster.join("results.json")).unwrap() == expected,
+        "re-submitted task: results differ from the local run"
+    );
+}
