@@ -92,7 +92,7 @@ impl<'a> Measuring<'a> {
         });
         let jitter_px = self.plan.seed_jitter_px;
         let (outcome, extra) = match outcome {
-            Ok((images, seg, vol)) => {
+            Ok((images, mut seg, vol)) => {
                 let jitter =
                     (jitter_px > 0 && plan.method == crate::agreement::REFERENCE).then(|| {
                         crate::seed_jitter::seed_jitter(
@@ -105,7 +105,10 @@ impl<'a> Measuring<'a> {
                             &vol.numbers,
                         )
                     });
-                let masks = seg.masks.clone();
+                // The row keeps the segmentation's notes and extents, not its masks: move
+                // them out instead of copying.
+                let masks =
+                    std::mem::replace(&mut seg.masks, ndarray::Array4::default((0, 0, 0, 0)));
                 (Ok((seg, vol)), Some((jitter, masks)))
             }
             Err(e) => (Err(e), None),

@@ -65,7 +65,7 @@ pub fn gather(
     let mut rows = Vec::with_capacity(units.len());
     for s in 0..plan.subjects.len() {
         let mine: Vec<&Unit> = units.iter().filter(|u| u.subject == s).collect();
-        let mut reference: Option<(RunRow, Stacks)> = None;
+        let mut reference: Option<(RunRow, Stacks, Option<PanelFrame>)> = None;
         for u in mine {
             let mut row = if store.has(&u.key) {
                 store.row(&u.key)?
@@ -81,27 +81,27 @@ pub fn gather(
             };
             match (stacks, &reference) {
                 (Some(st), None) if row.method == REFERENCE => {
-                    if let (Some(dir), Some(n)) = (panels, &row.numbers) {
-                        write_panels(dir, &row, &st, &st, (n.ed_frame, n.es_frame))?;
+                    let frame = panels.and_then(|_| PanelFrame::new(&row, &st));
+                    if let (Some(dir), Some(f)) = (panels, &frame) {
+                        write_panels(dir, &row, &st, f)?;
                     }
                     rows.push(row.clone());
-                    reference = Some((row, st));
+                    reference = Some((row, st, frame));
                     continue;
                 }
-                (Some(st), Some((ref_row, ref_st))) => {
+                (Some(st), Some((ref_row, ref_st, frame))) => {
                     if let Some(n) = &ref_row.numbers {
-                        let phases = (n.ed_frame, n.es_frame);
                         row.fidelity = Some(crate::fidelity::fidelity(
                             st.images.view(),
                             ref_st.images.view(),
                             st.masks.view(),
                             ref_st.masks.view(),
                             &ref_st.geometry,
-                            phases,
+                            (n.ed_frame, n.es_frame),
                         ));
-                        if let Some(dir) = panels {
-                            write_panels(dir, &row, &st, ref_st, phases)?;
-                        }
+                    }
+                    if let (Some(dir), Some(f)) = (panels, frame) {
+                        write_panels(dir, &row, &st, f)?;
                     }
                 }
                 _ => {}
@@ -114,20 +114,31 @@ pub fn gather(
     Ok(file)
 }
 
-/// The ED/ES panel pair of `row`, cropped and windowed as the subject's reference.
-fn write_panels(
-    dir: &Path,
-    row: &RunRow,
-    st: &Stacks,
-    reference: &Stacks,
-    (ed, es): (usize, usize),
-) -> Result<(), IoError> {
-    let Some(seed) = row.seeds.first() else {
-        return Ok(());
-    };
-    let s0 = seed.slice;
-    let crop = crate::panels::crop_box(reference.masks.view(), s0, ed);
-    let window = crate::panels::window(reference.images.view(), s0);
+/// How a subject's panels are cut and windowed: the seed's slice at the reference's ED and
+/// ES frames, cropped and windowed from the reference (computed once per subject).
+struct PanelFrame {
+    slice: usize,
+    phases: (usize, usize),
+    crop: (std::ops::Range<usize>, std::ops::Range<usize>),
+    window: (f32, f32),
+}
+
+impl PanelFrame {
+    /// From the subject's measured reference (`None`: no seed or no numbers).
+    fn new(row: &RunRow, reference: &Stacks) -> Option<Self> {
+        let slice = row.seeds.first()?.slice;
+        let n = row.numbers.as_ref()?;
+        Some(PanelFrame {
+            slice,
+            phases: (n.ed_frame, n.es_frame),
+            crop: crate::panels::crop_box(reference.masks.view(), slice, n.ed_frame),
+            window: crate::panels::window(reference.images.view(), slice),
+        })
+    }
+}
+
+/// The ED/ES panel pair of `row`, cut and windowed as the subject's reference.
+fn write_panels(dir: &Path, row: &RunRow, st: &Stacks, f: &PanelFrame) -> Result<(), IoError> {
     crate::io::ensure_dir(dir)?;
     let path = crate::panels::file(
         dir,
@@ -140,9 +151,9 @@ fn write_panels(
         &path,
         st.images.view(),
         st.masks.view(),
-        s0,
-        (ed, es),
-        &crop,
-        window,
+        f.slice,
+        f.phases,
+        &f.crop,
+        f.window,
     )
 }
