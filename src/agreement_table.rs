@@ -210,9 +210,14 @@ impl TableAgreement {
         }
         out += "\nintraclass correlation (McGraw & Wong notation)\n";
         for i in &self.icc {
+            let bound = |b: Option<f64>| b.map_or("not defined".to_string(), |v| format!("{v:.3}"));
             out += &format!(
-                "  ICC({:3})  {:.3} (95 % CI {:.3} to {:.3})  {}\n",
-                i.form, i.value, i.ci_lower, i.ci_upper, i.model
+                "  ICC({:3})  {:.3} (95 % CI {} to {})  {}\n",
+                i.form,
+                i.value,
+                bound(i.ci_lower),
+                bound(i.ci_upper),
+                i.model
             );
         }
         out += &format!("\n{}\n", self.caution);

@@ -248,8 +248,8 @@ pub fn read_sidecar(path: &Path) -> Result<GeometrySidecar, GeometryError> {
         path: path.display().to_string(),
         source,
     })?;
-    serde_json::from_str(&text).map_err(|e| GeometryError::Parse {
+    crate::json::parse(&text).map_err(|message| GeometryError::Parse {
         path: path.display().to_string(),
-        message: e.to_string(),
+        message,
     })
 }

@@ -203,7 +203,7 @@ impl ResultsFile {
     pub fn read(path: &Path) -> Result<Self, IoError> {
         let text =
             std::fs::read_to_string(path).map_err(|e| IoError::file(path, "cannot read", e))?;
-        serde_json::from_str(&text)
+        crate::json::parse(&text)
             .map_err(|e| IoError::content(path, format!("not a cinegauge results file: {e}")))
     }
 

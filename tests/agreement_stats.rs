@@ -166,13 +166,13 @@ fn icc_reproduces_shrout_and_fleiss_table_4() {
             &format!("{form} vs pingouin"),
         );
         close(
-            icc.ci_lower,
+            icc.ci_lower.expect("defined for this data"),
             num(&r["ci"][0]),
             0.006,
             &format!("{form} CI lower"),
         );
         close(
-            icc.ci_upper,
+            icc.ci_upper.expect("defined for this data"),
             num(&r["ci"][1]),
             0.006,
             &format!("{form} CI upper"),

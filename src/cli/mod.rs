@@ -52,6 +52,16 @@ pub struct Cli {
     /// Worker threads (default: every core).
     #[arg(long, global = true, value_name = "N")]
     pub jobs: Option<usize>,
+    /// Refuse files whose header claims an axis longer than N (rows, columns, frames, slices,
+    /// coils, samples).
+    #[arg(long, global = true, value_name = "N", env = "CINEGAUGE_MAX_EXTENT", help_heading = "Input limits",
+          default_value_t = cinegauge::limits::DEFAULT_MAX_EXTENT)]
+    pub max_extent: usize,
+    /// Refuse files whose header claims an array of more than N values (checked before
+    /// anything is allocated).
+    #[arg(long, global = true, value_name = "N", env = "CINEGAUGE_MAX_VALUES", help_heading = "Input limits",
+          default_value_t = cinegauge::limits::DEFAULT_MAX_VALUES)]
+    pub max_values: u64,
     /// What to do.
     #[command(subcommand)]
     pub command: Command,
@@ -102,6 +112,14 @@ pub enum Command {
 /// Whatever the command reports, with context naming the stage.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     let quiet = cli.quiet;
+    anyhow::ensure!(
+        cli.max_extent >= 1 && cli.max_values >= 1,
+        "--max-extent and --max-values must be at least 1"
+    );
+    cinegauge::limits::set(cinegauge::limits::Limits {
+        max_extent: cli.max_extent,
+        max_values: cli.max_values,
+    });
     if let Some(n) = cli.jobs {
         anyhow::ensure!(
             n >= 1,

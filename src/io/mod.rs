@@ -46,10 +46,17 @@ impl IoError {
     }
 
     pub(crate) fn content(path: &Path, message: impl Into<String>) -> Self {
-        IoError::Content {
-            path: path.display().to_string(),
-            message: message.into(),
-        }
+        let path = path.display().to_string();
+        let message = message.into();
+        // Errors of the stage below often start with the same file; say it once.
+        let message = match message
+            .strip_prefix(&path)
+            .and_then(|m| m.strip_prefix(": "))
+        {
+            Some(rest) => rest.to_string(),
+            None => message,
+        };
+        IoError::Content { path, message }
     }
 }
 

@@ -115,6 +115,8 @@ fn voxel_sizes(h: &NiftiHeader, warnings: &mut Vec<String>) -> Result<[f64; 3], 
 /// non-finite values.
 pub fn read_nifti_series(path: &Path) -> Result<ImageSeries, IoError> {
     let bad = |m: String| IoError::content(path, m);
+    let header = NiftiHeader::from_file(path).map_err(|e| bad(describe(e)))?;
+    check_claims(path, &header).map_err(bad)?;
     let obj = ReaderOptions::new()
         .read_file(path)
         .map_err(|e| bad(describe(e)))?;
@@ -150,7 +152,10 @@ pub fn read_nifti_series(path: &Path) -> Result<ImageSeries, IoError> {
         .as_standard_layout()
         .into_owned();
     if let Some((i, v)) = images.indexed_iter().find(|(_, v)| !v.is_finite()) {
-        return Err(bad(format!("non-finite voxel value {v} at index {i:?}")));
+        return Err(bad(format!(
+            "non-finite voxel value {v} at {}",
+            super::npy::position(i)
+        )));
     }
     let interval = f64::from(h.pixdim[4]) * ms;
     if frames > 1 && !(interval.is_finite() && interval > 0.0) {
@@ -182,6 +187,66 @@ pub fn read_nifti_series(path: &Path) -> Result<ImageSeries, IoError> {
         files: vec![path.to_path_buf()],
         positions_mm: None,
     })
+}
+
+/// Checks what the header claims before the voxel data is read: the dimensions against the
+/// resource limits ([`crate::limits`]), the datatype, and for an uncompressed file that
+/// `vox_offset` and the data it promises lie within the file.
+fn check_claims(path: &Path, h: &NiftiHeader) -> Result<(), String> {
+    let rank = usize::from(h.dim[0]);
+    if !(1..=7).contains(&rank) {
+        return Err(format!(
+            "dim[0] = {}: the number of dimensions must be 1 to 7 (3 or 4 for a series)",
+            h.dim[0]
+        ));
+    }
+    let names = [
+        "dim[1] (columns)",
+        "dim[2] (rows)",
+        "dim[3] (slices)",
+        "dim[4] (frames)",
+        "dim[5]",
+        "dim[6]",
+        "dim[7]",
+    ];
+    let mut axes = Vec::with_capacity(rank);
+    for (i, name) in names.iter().enumerate().take(rank) {
+        let n = h.dim[i + 1];
+        if n < 1 {
+            return Err(format!("{name} = {n}: every dimension must be at least 1"));
+        }
+        axes.push((*name, n as u64));
+    }
+    crate::limits::check_shape("voxel data", &axes)?;
+    let datatype = h
+        .data_type()
+        .map_err(|_| format!("datatype = {}: not a NIfTI-1 datatype code", h.datatype))?;
+    if !(h.vox_offset.is_finite() && h.vox_offset >= 0.0) {
+        return Err(format!("vox_offset = {}: not a byte offset", h.vox_offset));
+    }
+    let values: u64 = axes.iter().map(|(_, n)| n).product();
+    let needed = values * datatype.size_of() as u64;
+    if h.magic == *b"n+1\0" && !is_gz(path) {
+        let len = std::fs::metadata(path).map(|m| m.len()).unwrap_or(0);
+        let offset = h.vox_offset as u64;
+        if offset > len {
+            return Err(format!(
+                "vox_offset = {} lies beyond the end of the file ({len} bytes)",
+                h.vox_offset
+            ));
+        }
+        crate::limits::check_bytes("voxel data", needed, len - offset.max(352))?;
+    } else if h.vox_offset > (1u64 << 26) as f32 {
+        return Err(format!(
+            "vox_offset = {}: more than 64 MiB of header extensions",
+            h.vox_offset
+        ));
+    }
+    Ok(())
+}
+
+fn is_gz(path: &Path) -> bool {
+    path.to_string_lossy().to_ascii_lowercase().ends_with(".gz")
 }
 
 /// A header carrying the geometry: voxel sizes in mm, frame interval in ms, a diagonal sform.

@@ -4,8 +4,12 @@
 use std::path::{Path, PathBuf};
 
 use ndarray::{Array4, ArrayView4};
-use ndarray_npy::{NpzReader, ReadNpyExt, WriteNpyExt};
+use std::io::{BufReader, Seek, SeekFrom};
+
+use ndarray_npy::npy::header::Header;
+use ndarray_npy::{ReadNpyExt, ReadableElement, WriteNpyExt};
 use num_complex::Complex32;
+use py_literal::Value as PyValue;
 
 use super::{file_names, write_atomic, write_atomic_with, IoError};
 use crate::geometry::{read_sidecar, Geometry};
@@ -32,6 +36,11 @@ pub struct ImageSeries {
     pub files: Vec<PathBuf>,
     /// Slice positions along the normal (mm) where the format records them (DICOM).
     pub positions_mm: Option<Vec<f64>>,
+}
+
+/// `slice s, frame f, row r, col c` (zero-based) of an index into an image stack.
+pub(crate) fn position((s, f, r, c): (usize, usize, usize, usize)) -> String {
+    format!("slice {s}, frame {f}, row {r}, col {c} (zero-based)")
 }
 
 /// Whether a path names a NumPy array file (`.npy`, or an `.npz` archive).
@@ -81,7 +90,7 @@ pub fn read_image_series(path: &Path) -> Result<ImageSeries, IoError> {
     if let Some(bad) = images.indexed_iter().find(|(_, v)| !v.is_finite()) {
         return Err(IoError::content(
             &file,
-            format!("non-finite value {} at index {:?}", bad.1, bad.0),
+            format!("non-finite value {} at {}", bad.1, position(bad.0)),
         ));
     }
     let sidecar_path = dir.join(SIDECAR);
@@ -104,14 +113,72 @@ pub fn read_image_series(path: &Path) -> Result<ImageSeries, IoError> {
     })
 }
 
+/// Checks an `.npy` header before its data is read: the number of axes, each axis and the
+/// total against the resource limits ([`crate::limits`]), and the bytes the shape needs
+/// against the `available` bytes after the header (when known).
+fn check_header(
+    file: &Path,
+    header: &Header,
+    available: Option<u64>,
+    axes: &[&str],
+) -> Result<(), IoError> {
+    let bad = |m: String| IoError::content(file, m);
+    if header.shape.len() != axes.len() {
+        return Err(bad(format!(
+            "expected {} axes [{}], found shape {:?}",
+            axes.len(),
+            axes.join(", "),
+            header.shape
+        )));
+    }
+    let named: Vec<(&str, u64)> = axes
+        .iter()
+        .zip(&header.shape)
+        .map(|(a, n)| (*a, *n as u64))
+        .collect();
+    crate::limits::check_shape("array", &named).map_err(bad)?;
+    if let (Some(available), PyValue::String(descr)) = (available, &header.type_descriptor) {
+        let digits = descr.trim_start_matches(|c: char| !c.is_ascii_digit());
+        if let Ok(size) = digits.parse::<u64>() {
+            let values: u64 = named.iter().map(|(_, n)| n).product();
+            crate::limits::check_bytes("array", values.saturating_mul(size), available)
+                .map_err(bad)?;
+        }
+    }
+    Ok(())
+}
+
+/// Reads an `.npy` file as `A` with the named axes, its header checked first
+/// ([`check_header`]), so a header claiming more than the file holds allocates nothing.
+///
+/// # Errors
+/// [`IoError`] naming the file: unreadable, wrong axes or dtype, beyond the limits, short.
+pub fn read_checked<A: ReadableElement, D: ndarray::Dimension>(
+    file: &Path,
+    axes: &[&str],
+) -> Result<ndarray::Array<A, D>, IoError> {
+    let open = || std::fs::File::open(file).map_err(|e| IoError::file(file, "cannot open", e));
+    let mut f = BufReader::new(open()?);
+    let header = Header::from_reader(&mut f)
+        .map_err(|e| IoError::content(file, format!("not a readable .npy header: {e}")))?;
+    let len = std::fs::metadata(file)
+        .map_err(|e| IoError::file(file, "cannot read", e))?
+        .len();
+    let at = f
+        .stream_position()
+        .map_err(|e| IoError::file(file, "cannot read", e))?;
+    check_header(file, &header, Some(len.saturating_sub(at)), axes)?;
+    f.seek(SeekFrom::Start(0))
+        .map_err(|e| IoError::file(file, "cannot read", e))?;
+    ndarray::Array::<A, D>::read_npy(f).map_err(|e| IoError::content(file, e.to_string()))
+}
+
 /// The image array of an `.npz` archive: the one named `images`, or the only one.
 fn read_npz_images(file: &Path) -> Result<Array4<f32>, IoError> {
     let f = std::fs::File::open(file).map_err(|e| IoError::file(file, "cannot open", e))?;
-    let mut npz = NpzReader::new(f)
+    let mut zip = zip::ZipArchive::new(BufReader::new(f))
         .map_err(|e| IoError::content(file, format!("not a readable .npz archive: {e}")))?;
-    let names = npz
-        .names()
-        .map_err(|e| IoError::content(file, format!("cannot list the .npz archive: {e}")))?;
+    let names: Vec<String> = zip.file_names().map(str::to_string).collect();
     let name = match names.iter().find(|n| *n == "images" || *n == "images.npy") {
         Some(n) => n.clone(),
         None if names.len() == 1 => names[0].clone(),
@@ -132,31 +199,53 @@ fn read_npz_images(file: &Path) -> Result<Array4<f32>, IoError> {
             format!("array `{name}`: expected a 4-D float32 or float64 array [slice, frame, row, col]: {e}"),
         )
     };
-    match npz.by_name::<ndarray::OwnedRepr<f32>, ndarray::Ix4>(&name) {
-        Ok(a) => Ok(a),
-        Err(first) => npz
-            .by_name::<ndarray::OwnedRepr<f64>, ndarray::Ix4>(&name)
-            .map(|a| a.mapv(|v| v as f32))
-            .map_err(|_| wrong(first.to_string())),
+    {
+        let mut e = zip.by_name(&name).map_err(|e| wrong(e.to_string()))?;
+        let size = e.size();
+        let header = Header::from_reader(&mut e).map_err(|e| wrong(e.to_string()))?;
+        check_header(file, &header, Some(size), &IMAGE_AXES)
+            .map_err(|e| wrong(content_message(e)))?;
     }
+    let first = match Array4::<f32>::read_npy(zip.by_name(&name).map_err(|e| wrong(e.to_string()))?)
+    {
+        Ok(a) => return Ok(a),
+        Err(e) => e,
+    };
+    let entry = zip.by_name(&name).map_err(|e| wrong(e.to_string()))?;
+    let wide = Array4::<f64>::read_npy(entry);
+    wide.map(|a| a.mapv(|v| v as f32))
+        .map_err(|_| wrong(first.to_string()))
 }
+
+/// The axes of an image array.
+pub const IMAGE_AXES: [&str; 4] = ["slice", "frame", "row", "col"];
+/// The axes of one slice of raw k-space.
+pub const KSPACE_AXES: [&str; 4] = ["coil", "frame", "ky", "kx"];
 
 fn read_f32_4d(file: &Path) -> Result<Array4<f32>, IoError> {
     if file.extension().is_some_and(|x| x == "npz") {
         return read_npz_images(file);
     }
-    let open = || std::fs::File::open(file).map_err(|e| IoError::file(file, "cannot open", e));
-    match Array4::<f32>::read_npy(open()?) {
+    match read_checked::<f32, ndarray::Ix4>(file, &IMAGE_AXES) {
         Ok(a) => Ok(a),
-        Err(first) => match Array4::<f64>::read_npy(open()?) {
+        Err(first) => match read_checked::<f64, ndarray::Ix4>(file, &IMAGE_AXES) {
             Ok(a) => Ok(a.mapv(|v| v as f32)),
             Err(_) => Err(IoError::content(
                 file,
                 format!(
-                    "expected a 4-D float32 or float64 array [slice, frame, row, col]: {first}"
+                    "expected a 4-D float32 or float64 array [slice, frame, row, col]: {}",
+                    content_message(first)
                 ),
             )),
         },
+    }
+}
+
+/// The message of a content error without its path (to re-wrap it with more context).
+fn content_message(e: IoError) -> String {
+    match e {
+        IoError::Content { message, .. } => message,
+        other => other.to_string(),
     }
 }
 
@@ -223,19 +312,20 @@ pub struct KspaceFolder {
     pub unknown_keys: Vec<String>,
 }
 
-fn read_complex<D: ndarray::Dimension>(file: &Path) -> Result<ndarray::Array<Complex32, D>, IoError>
-where
-    ndarray::Array<Complex32, D>: ReadNpyExt,
-    ndarray::Array<num_complex::Complex64, D>: ReadNpyExt,
-{
-    let open = || std::fs::File::open(file).map_err(|e| IoError::file(file, "cannot open", e));
-    match ndarray::Array::<Complex32, D>::read_npy(open()?) {
+fn read_complex<D: ndarray::Dimension>(
+    file: &Path,
+    axes: &[&str],
+) -> Result<ndarray::Array<Complex32, D>, IoError> {
+    match read_checked::<Complex32, D>(file, axes) {
         Ok(a) => Ok(a),
-        Err(first) => match ndarray::Array::<num_complex::Complex64, D>::read_npy(open()?) {
+        Err(first) => match read_checked::<num_complex::Complex64, D>(file, axes) {
             Ok(a) => Ok(a.mapv(|z| Complex32::new(z.re as f32, z.im as f32))),
             Err(_) => Err(IoError::content(
                 file,
-                format!("expected a complex64 or complex128 array: {first}"),
+                format!(
+                    "expected a complex64 or complex128 array: {}",
+                    content_message(first)
+                ),
             )),
         },
     }
@@ -246,7 +336,7 @@ where
 /// # Errors
 /// [`IoError`] naming the file: wrong dtype or number of axes.
 pub fn read_kspace_slice(file: &Path) -> Result<Array4<Complex32>, IoError> {
-    read_complex::<ndarray::Ix4>(file)
+    read_complex::<ndarray::Ix4>(file, &KSPACE_AXES)
 }
 
 /// Opens a raw k-space folder: lists `slice_NN.npy` in numeric order (no gaps allowed),
@@ -296,7 +386,7 @@ pub fn open_kspace_folder(dir: &Path) -> Result<KspaceFolder, IoError> {
     let cov_path = dir.join("noise_cov.npy");
     let scan_path = dir.join("noise_scan.npy");
     let noise_cov = if cov_path.exists() {
-        let c = read_complex::<ndarray::Ix2>(&cov_path)?;
+        let c = read_complex::<ndarray::Ix2>(&cov_path, &["coil", "coil"])?;
         if c.dim() != (nc, nc) {
             return Err(IoError::content(
                 &cov_path,
@@ -308,7 +398,7 @@ pub fn open_kspace_folder(dir: &Path) -> Result<KspaceFolder, IoError> {
         }
         Some(c)
     } else if scan_path.exists() {
-        let s = read_complex::<ndarray::Ix2>(&scan_path)?;
+        let s = read_complex::<ndarray::Ix2>(&scan_path, &["coil", "sample"])?;
         if s.nrows() != nc || s.ncols() < 2 {
             return Err(IoError::content(
                 &scan_path,

@@ -5,13 +5,12 @@
 //! unit folder either holds everything or does not exist: a run killed at any moment leaves
 //! no half-written unit, and two processes finishing the same unit leave one whole copy.
 
-use std::fs::File;
-use std::io::BufWriter;
+use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicUsize, Ordering};
 
 use ndarray::{Array4, ArrayView4};
-use ndarray_npy::{ReadNpyExt, WriteNpyExt};
+use ndarray_npy::WriteNpyExt;
 
 use crate::geometry::{read_sidecar, Geometry};
 use crate::io::IoError;
@@ -80,11 +79,9 @@ impl Store {
         if !ip.is_file() {
             return Ok(None);
         }
-        let open = |p: &Path| File::open(p).map_err(|e| IoError::file(p, "cannot open", e));
-        let images = Array4::<f32>::read_npy(open(&ip)?)
-            .map_err(|e| IoError::content(&ip, e.to_string()))?;
-        let masks = Array4::<bool>::read_npy(open(&mp)?)
-            .map_err(|e| IoError::content(&mp, e.to_string()))?;
+        let axes = &crate::io::npy::IMAGE_AXES;
+        let images = crate::io::npy::read_checked::<f32, ndarray::Ix4>(&ip, axes)?;
+        let masks = crate::io::npy::read_checked::<bool, ndarray::Ix4>(&mp, axes)?;
         let gp = dir.join(GEOMETRY);
         let sidecar = read_sidecar(&gp).map_err(|e| IoError::content(&gp, e.to_string()))?;
         let geometry = Geometry::from_sidecar(&sidecar, images.dim().1, &gp.display().to_string())
@@ -116,11 +113,7 @@ impl Store {
                 crate::io::npy::write_sidecar(&tmp, geometry)?;
             }
             let json = serde_json::to_vec_pretty(row).expect("rows serialise");
-            let p = tmp.join(ROW);
-            std::fs::write(&p, json).map_err(|e| IoError::file(&p, "cannot write", e))?;
-            File::open(&p)
-                .and_then(|f| f.sync_all())
-                .map_err(|e| IoError::file(&p, "cannot write", e))
+            crate::io::write_atomic(&tmp.join(ROW), &json)
         })();
         if let Err(e) = written {
             let _ = std::fs::remove_dir_all(&tmp);
@@ -149,13 +142,9 @@ impl Store {
 }
 
 fn write_npy<T: WriteNpyExt>(path: &Path, data: &T) -> Result<(), IoError> {
-    let f = File::create(path).map_err(|e| IoError::file(path, "cannot create", e))?;
-    let mut w = BufWriter::new(f);
-    data.write_npy(&mut w)
-        .map_err(|e| IoError::content(path, format!("cannot write: {e}")))?;
-    let f = w
-        .into_inner()
-        .map_err(|e| IoError::file(path, "cannot write", e.into_error()))?;
-    f.sync_all()
-        .map_err(|e| IoError::file(path, "cannot write", e))
+    crate::io::write_atomic_with(path, |f| {
+        let mut w = BufWriter::new(f);
+        data.write_npy(&mut w).map_err(std::io::Error::other)?;
+        w.flush()
+    })
 }

@@ -20,10 +20,12 @@ pub struct Icc {
     pub model: &'static str,
     /// Estimate.
     pub value: f64,
-    /// Lower confidence bound.
-    pub ci_lower: f64,
-    /// Upper confidence bound.
-    pub ci_upper: f64,
+    /// Lower confidence bound; `None` where the interval is not defined (the
+    /// Satterthwaite degrees of freedom of an absolute-agreement form are not positive when
+    /// the estimate is far below zero, and the F quantile then does not exist).
+    pub ci_lower: Option<f64>,
+    /// Upper confidence bound; `None` where not defined (as the lower).
+    pub ci_upper: Option<f64>,
     /// F statistic of ICC = 0.
     pub f: f64,
     /// Its degrees of freedom.
@@ -94,6 +96,11 @@ fn f_bounds(f: f64, d1: f64, d2: f64, q: f64) -> (f64, f64) {
     (f / f_quantile(q, d1, d2), f * f_quantile(q, d2, d1))
 }
 
+/// A bound that exists (finite), or `None`.
+fn defined(x: f64) -> Option<f64> {
+    x.is_finite().then_some(x)
+}
+
 /// The six forms for `ratings` (`ratings[i][j]`: subject i, rater j) at `confidence`.
 ///
 /// Intervals: one-way and consistency forms from the F ratio's quantiles (Shrout & Fleiss
@@ -126,8 +133,8 @@ pub fn icc_all(ratings: &[Vec<f64>], confidence: f64) -> Result<Vec<Icc>, StatsE
         form: "1,1".into(),
         model: "one-way random, single rating",
         value: (bms - wms) / (bms + (k - 1.0) * wms),
-        ci_lower: (fl1 - 1.0) / (fl1 + k - 1.0),
-        ci_upper: (fu1 - 1.0) / (fu1 + k - 1.0),
+        ci_lower: defined((fl1 - 1.0) / (fl1 + k - 1.0)),
+        ci_upper: defined((fu1 - 1.0) / (fu1 + k - 1.0)),
         f: f1,
         df: (df1, df2),
         p_value: p1,
@@ -150,8 +157,8 @@ pub fn icc_all(ratings: &[Vec<f64>], confidence: f64) -> Result<Vec<Icc>, StatsE
         form: "A,1".into(),
         model: "two-way, absolute agreement, single rating",
         value: a1,
-        ci_lower: lo_a,
-        ci_upper: hi_a,
+        ci_lower: defined(lo_a),
+        ci_upper: defined(hi_a),
         f: f3,
         df: (df1, df2),
         p_value: p3,
@@ -163,8 +170,8 @@ pub fn icc_all(ratings: &[Vec<f64>], confidence: f64) -> Result<Vec<Icc>, StatsE
         form: "C,1".into(),
         model: "two-way mixed, consistency, single rating",
         value: (bms - ems) / (bms + (k - 1.0) * ems),
-        ci_lower: (fl3 - 1.0) / (fl3 + k - 1.0),
-        ci_upper: (fu3 - 1.0) / (fu3 + k - 1.0),
+        ci_lower: defined((fl3 - 1.0) / (fl3 + k - 1.0)),
+        ci_upper: defined((fu3 - 1.0) / (fu3 + k - 1.0)),
         f: f3,
         df: (df1, df2),
         p_value: p3,
@@ -176,8 +183,8 @@ pub fn icc_all(ratings: &[Vec<f64>], confidence: f64) -> Result<Vec<Icc>, StatsE
         form: "1,k".into(),
         model: "one-way random, mean of k ratings",
         value: (bms - wms) / bms,
-        ci_lower: 1.0 - 1.0 / fl1,
-        ci_upper: 1.0 - 1.0 / fu1,
+        ci_lower: defined(1.0 - 1.0 / fl1),
+        ci_upper: defined(1.0 - 1.0 / fu1),
         f: f1,
         df: (d1_one, d2_one),
         p_value: p1,
@@ -186,8 +193,8 @@ pub fn icc_all(ratings: &[Vec<f64>], confidence: f64) -> Result<Vec<Icc>, StatsE
         form: "A,k".into(),
         model: "two-way, absolute agreement, mean of k ratings",
         value: (bms - ems) / (bms + (jms - ems) / n),
-        ci_lower: avg(lo_a),
-        ci_upper: avg(hi_a),
+        ci_lower: defined(avg(lo_a)),
+        ci_upper: defined(avg(hi_a)),
         f: f3,
         df: (df1, df2),
         p_value: p3,
@@ -196,8 +203,8 @@ pub fn icc_all(ratings: &[Vec<f64>], confidence: f64) -> Result<Vec<Icc>, StatsE
         form: "C,k".into(),
         model: "two-way mixed, consistency, mean of k ratings",
         value: (bms - ems) / bms,
-        ci_lower: 1.0 - 1.0 / fl3,
-        ci_upper: 1.0 - 1.0 / fu3,
+        ci_lower: defined(1.0 - 1.0 / fl3),
+        ci_upper: defined(1.0 - 1.0 / fu3),
         f: f3,
         df: (df1, df2),
         p_value: p3,

@@ -208,6 +208,8 @@ impl Source<'_> {
 
 /// The headers of one file: one for a classic image, one per frame for an enhanced file.
 pub(super) fn read_headers(path: &Path) -> Result<Vec<Header>, IoError> {
+    let bytes = std::fs::read(path).map_err(|e| IoError::file(path, "cannot read", e))?;
+    super::lengths::check(&bytes).map_err(|m| IoError::content(path, m))?;
     let obj = OpenFileOptions::new()
         .read_until(tags::PIXEL_DATA)
         .open_file(path)

@@ -190,6 +190,15 @@ pub fn read_dicom_series(dir: &Path, series: Option<&str>) -> Result<ImageSeries
             ));
         }
     }
+    crate::limits::check_shape(
+        "pixel data",
+        &[
+            ("Rows (0028,0010)", first.rows as u64),
+            ("Columns (0028,0011)", first.cols as u64),
+            ("images", images.len() as u64),
+        ],
+    )
+    .map_err(|m| IoError::content(dir, m))?;
     let spacing = first
         .spacing
         .ok_or_else(|| IoError::content(&first.path, "PixelSpacing (0028,0030) is missing"))?;
@@ -349,6 +358,7 @@ fn decode(h: &Header, rows: usize, cols: usize) -> Result<Array4<f32>, IoError> 
     use ::dicom::pixeldata::{ConvertOptions, ModalityLutOption};
     let obj = ::dicom::object::open_file(&h.path)
         .map_err(|e| IoError::content(&h.path, format!("not a readable DICOM file: {e}")))?;
+    check_pixel_attributes(&obj).map_err(|m| IoError::content(&h.path, m))?;
     let options = if h.enhanced {
         ConvertOptions::new().with_modality_lut(ModalityLutOption::None)
     } else {
@@ -379,6 +389,53 @@ fn decode(h: &Header, rows: usize, cols: usize) -> Result<Array4<f32>, IoError> 
     Ok(px)
 }
 
+/// Checks the image pixel attributes (PS3.3 C.7.6.3) before decoding: the decoder assumes
+/// them sane (a BitsStored of 0 stops it, 32 makes it build a 4-G-entry table) and sizes its
+/// buffers from them.
+fn check_pixel_attributes(obj: &::dicom::object::DefaultDicomObject) -> Result<(), String> {
+    use ::dicom::dictionary_std::tags;
+    let int = |tag, name: &str| -> Result<Option<u64>, String> {
+        match obj.element_opt(tag) {
+            Ok(Some(e)) => e
+                .to_int::<u64>()
+                .map(Some)
+                .map_err(|_| format!("{name} {tag} is not a non-negative whole number")),
+            _ => Ok(None),
+        }
+    };
+    let samples = int(tags::SAMPLES_PER_PIXEL, "SamplesPerPixel")?.unwrap_or(1);
+    if samples != 1 {
+        return Err(format!(
+            "SamplesPerPixel (0028,0002) is {samples}: only single-sample (grey-scale) MR images can be read"
+        ));
+    }
+    let allocated = int(tags::BITS_ALLOCATED, "BitsAllocated")?
+        .ok_or("BitsAllocated (0028,0100) is missing")?;
+    if ![8, 16, 32].contains(&allocated) {
+        return Err(format!(
+            "BitsAllocated (0028,0100) is {allocated}: expected 8, 16 or 32"
+        ));
+    }
+    let stored = int(tags::BITS_STORED, "BitsStored")?.unwrap_or(allocated);
+    if !(1..=allocated.min(16)).contains(&stored) {
+        return Err(format!(
+            "BitsStored (0028,0101) is {stored} with BitsAllocated {allocated}: expected 1 to {}",
+            allocated.min(16)
+        ));
+    }
+    let rows = int(tags::ROWS, "Rows")?.unwrap_or(0);
+    let cols = int(tags::COLUMNS, "Columns")?.unwrap_or(0);
+    let frames = int(tags::NUMBER_OF_FRAMES, "NumberOfFrames")?.unwrap_or(1);
+    crate::limits::check_shape(
+        "pixel data",
+        &[
+            ("NumberOfFrames (0028,0008)", frames),
+            ("Rows (0028,0010)", rows),
+            ("Columns (0028,0011)", cols),
+        ],
+    )
+}
+
 /// `UID (name)` of a transfer syntax, the name from the registry when it is known.
 fn transfer_syntax_name(uid: &str) -> String {
     use ::dicom::encoding::TransferSyntaxIndex;
@@ -398,5 +455,6 @@ fn describe(found: &[SeriesSummary]) -> String {
 }
 
 mod header;
+mod lengths;
 mod write;
 pub use write::{derived_uid, write_dicom_series, SeriesLabel};

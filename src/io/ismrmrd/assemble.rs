@@ -231,6 +231,17 @@ impl RawData {
                 "acquisitionSystemInformation/receiverChannels is {n}, the acquisitions hold {coils} channels; the acquisitions are read"
             ));
         }
+        crate::limits::check_shape(
+            "k-space",
+            &[
+                ("encodingLimits/slice", ns as u64),
+                ("encodingLimits/phase (frames)", nf as u64),
+                ("active_channels", coils as u64),
+                ("encodedSpace/matrixSize/y", ny as u64),
+                ("encodedSpace/matrixSize/x", nx as u64),
+            ],
+        )
+        .map_err(err)?;
         let (min1, _, center) = header.step1;
         let mut count = vec![0u32; ns * nf * ny];
         let mut lines = vec![Vec::new(); ns];

@@ -48,7 +48,7 @@ fn read_overrides(path: &Path) -> Result<Option<Overrides>, IoError> {
     }
     let text =
         std::fs::read_to_string(&side).map_err(|e| IoError::file(&side, "cannot read", e))?;
-    serde_json::from_str(&text)
+    crate::json::parse(&text)
         .map(Some)
         .map_err(|e| IoError::content(&side, format!("not a valid geometry sidecar: {e}")))
 }
