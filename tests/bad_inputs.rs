@@ -11,7 +11,7 @@
 //! The second test replays the fuzz targets' seed inputs and every input the fuzzers found
 //! (`fuzz/regressions/`) through the same entry points the fuzzers use.
 
-mod common;
+use crate::common;
 
 use std::path::{Path, PathBuf};
 use std::process::Command;

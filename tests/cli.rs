@@ -4,7 +4,7 @@ use std::path::Path;
 
 use cinegauge::tolerances::{EDV_REL_FULLY_SAMPLED, EF_PP_FULLY_SAMPLED};
 
-mod common;
+use crate::common;
 
 use common::{cinegauge, text};
 

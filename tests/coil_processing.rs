@@ -1,6 +1,6 @@
 //! Noise pre-whitening and coil compression against their defining identities.
 
-mod common;
+use crate::common;
 
 use cinegauge::fft::CenteredFft2;
 use cinegauge::recon::coils::{coil_images, compression_matrix, mix_coils, rss, whitening_matrix};

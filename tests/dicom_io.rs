@@ -7,7 +7,7 @@ use std::path::PathBuf;
 
 use cinegauge::io;
 
-mod common;
+use crate::common;
 
 fn fixture(name: &str) -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))

@@ -1,7 +1,7 @@
 //! The centred orthonormal 2-D FFT against the DFT definition, Parseval's theorem,
 //! inverse ∘ forward = identity, and NumPy's `fftshift(fft2(ifftshift(x), norm="ortho"))`.
 
-mod common;
+use crate::common;
 
 use cinegauge::fft::{CenteredFft2, Direction};
 use cinegauge::tolerances::FFT_REL_ERROR;

@@ -8,7 +8,7 @@ use cinegauge::io::{self, nifti};
 use cinegauge::pipeline;
 use cinegauge::segment::SegmentParams;
 
-mod common;
+use crate::common;
 
 fn fixture(name: &str) -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))

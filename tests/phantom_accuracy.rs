@@ -8,7 +8,7 @@ use cinegauge::phantom::Phantom;
 use cinegauge::pipeline;
 use cinegauge::segment::SegmentParams;
 
-mod common;
+use crate::common;
 use cinegauge::tolerances::{DICE_MIN_FULLY_SAMPLED, EDV_REL_FULLY_SAMPLED, EF_PP_FULLY_SAMPLED};
 use ndarray::{s, Array4, Axis};
 

@@ -10,7 +10,7 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-mod common;
+use crate::common;
 use common::{cinegauge, text};
 
 fn pydicom() -> bool {

@@ -2,7 +2,7 @@
 //! the encoding operator, Shepp–Logan by CG-SENSE, the SENSE g-factor, and each iterative
 //! method against zero-filling on the beating phantom.
 
-mod common;
+use crate::common;
 
 use cinegauge::demo;
 use cinegauge::fft::{CenteredFft2, Direction, TemporalFft};

@@ -1,7 +1,7 @@
 //! Region growing against a plain breadth-first flood fill, hole filling against a plain
 //! border flood, and the refusals that name the seed.
 
-mod common;
+use crate::common;
 
 use std::collections::VecDeque;
 

@@ -9,7 +9,7 @@ use cinegauge::sampling::SamplingSpec;
 use cinegauge::seed_jitter::seed_jitter;
 use cinegauge::segment::{BloodPoolConvention, SegmentParams};
 
-mod common;
+use crate::common;
 
 /// The fully sampled reconstruction of demo subject `k` and its phantom.
 fn reference(k: usize) -> (Phantom, ndarray::Array4<f32>) {

@@ -7,7 +7,7 @@ use std::process::Command;
 
 use cinegauge::plan;
 
-mod common;
+use crate::common;
 use common::{cinegauge, text};
 
 fn bin() -> PathBuf {

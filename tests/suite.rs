@@ -3,6 +3,7 @@
 //! own (`cargo test --release -- cli::` runs one); `ismrmrd_io` is separate because it needs
 //! the `ismrmrd` feature.
 
+mod common;
 #[path = "agreement_stats.rs"]
 mod agreement_stats;
 #[path = "bad_inputs.rs"]
