@@ -3,7 +3,6 @@
 //! own (`cargo test --release -- cli::` runs one); `ismrmrd_io` is separate because it needs
 //! the `ismrmrd` feature.
 
-mod common;
 #[path = "agreement_stats.rs"]
 mod agreement_stats;
 #[path = "bad_inputs.rs"]
@@ -12,6 +11,7 @@ mod bad_inputs;
 mod cli;
 #[path = "coil_processing.rs"]
 mod coil_processing;
+mod common;
 #[path = "conventions.rs"]
 mod conventions;
 #[path = "dicom_io.rs"]
