@@ -1,40 +1,33 @@
 //! Quantiles and tail probabilities of the t, F and normal distributions (statrs), so that
-//! every interval and test uses one well-kept implementation.
+//! every interval and test uses one well-kept implementation. Degrees of freedom that are not
+//! positive (Satterthwaite's, for instance, on odd data) give NaN, never a panic; callers
+//! report such a value as not defined.
 
 use statrs::distribution::{ContinuousCDF, FisherSnedecor, Normal, StudentsT};
 
 /// Quantile `p` of Student's t with `df` degrees of freedom.
 pub fn t_quantile(p: f64, df: f64) -> f64 {
-    StudentsT::new(0.0, 1.0, df)
-        .expect("positive degrees of freedom")
-        .inverse_cdf(p)
+    StudentsT::new(0.0, 1.0, df).map_or(f64::NAN, |d| d.inverse_cdf(p))
 }
 
 /// Two-sided p-value of a t statistic.
 pub fn t_two_sided_p(t: f64, df: f64) -> f64 {
-    let d = StudentsT::new(0.0, 1.0, df).expect("positive degrees of freedom");
-    (2.0 * d.sf(t.abs())).min(1.0)
+    StudentsT::new(0.0, 1.0, df).map_or(f64::NAN, |d| (2.0 * d.sf(t.abs())).min(1.0))
 }
 
 /// Upper-tail probability `P(T > t)`.
 pub fn t_sf(t: f64, df: f64) -> f64 {
-    StudentsT::new(0.0, 1.0, df)
-        .expect("positive degrees of freedom")
-        .sf(t)
+    StudentsT::new(0.0, 1.0, df).map_or(f64::NAN, |d| d.sf(t))
 }
 
 /// Quantile `p` of the F distribution with `(d1, d2)` degrees of freedom.
 pub fn f_quantile(p: f64, d1: f64, d2: f64) -> f64 {
-    FisherSnedecor::new(d1, d2)
-        .expect("positive degrees of freedom")
-        .inverse_cdf(p)
+    FisherSnedecor::new(d1, d2).map_or(f64::NAN, |d| d.inverse_cdf(p))
 }
 
 /// Upper-tail probability `P(F > f)`.
 pub fn f_sf(f: f64, d1: f64, d2: f64) -> f64 {
-    FisherSnedecor::new(d1, d2)
-        .expect("positive degrees of freedom")
-        .sf(f)
+    FisherSnedecor::new(d1, d2).map_or(f64::NAN, |d| d.sf(f))
 }
 
 /// Quantile `p` of the standard normal.
