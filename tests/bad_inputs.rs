@@ -450,7 +450,7 @@ fn catalogue(root: &Path) -> Vec<Case> {
     );
     add(
         "nifti dim[0] out of range (either byte order)",
-        &["cine.nii", "dim[0]"],
+        &["cine.nii", "dim[0] = 2304 (9 in the other byte order)"],
         &|d| {
             let p = nifti(d, |b| set_i16(b, 40, 9));
             measure(d, &p)

@@ -195,9 +195,11 @@ pub fn read_nifti_series(path: &Path) -> Result<ImageSeries, IoError> {
 fn check_claims(path: &Path, h: &NiftiHeader) -> Result<(), String> {
     let rank = usize::from(h.dim[0]);
     if !(1..=7).contains(&rank) {
+        // The byte order is taken from dim[0] itself, so a bad value is bad in both orders.
         return Err(format!(
-            "dim[0] = {}: the number of dimensions must be 1 to 7 (3 or 4 for a series)",
-            h.dim[0]
+            "dim[0] = {} ({} in the other byte order): the number of dimensions must be 1 to 7 (3 or 4 for a series)",
+            h.dim[0],
+            h.dim[0].swap_bytes()
         ));
     }
     let names = [
