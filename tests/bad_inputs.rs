@@ -719,6 +719,11 @@ fn catalogue(root: &Path) -> Vec<Case> {
         agreement(d, "a,b\n50,51\n52\n53,54\n")
     });
     add("csv empty", &["table.csv"], &|d| agreement(d, ""));
+    add(
+        "csv value beyond 1e15",
+        &["table.csv", "line 3", "`b`", "1e15"],
+        &|d| agreement(d, "a,b\n50,51\n52,6e78\n53,54\n"),
+    );
     add("csv NaN cell", &["table.csv", "line 2"], &|d| {
         agreement(d, "a,b\nNaN,51\n52,53\n53,54\n")
     });

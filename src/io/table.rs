@@ -5,11 +5,16 @@ use std::path::Path;
 
 use super::IoError;
 
+/// Largest magnitude accepted in a cell: sums of squares of up to a million such values stay
+/// finite in f64, so no statistic overflows to infinity or NaN.
+const MAX_MAGNITUDE: f64 = 1e15;
+
 /// The named columns of `path`, in the order asked for, as numbers.
 ///
 /// # Errors
 /// [`IoError`] naming the file, and the column, row (one-based data row and file line) and
-/// cell at fault: a missing column, a row with too few cells, an empty or non-numeric cell.
+/// cell at fault: a missing column, a row with too few cells, an empty or non-numeric cell, a
+/// magnitude beyond 1e15.
 pub fn read_columns(path: &Path, names: &[String]) -> Result<Vec<Vec<f64>>, IoError> {
     let bytes = std::fs::read(path).map_err(|e| IoError::file(path, "cannot read", e))?;
     let mut reader = csv::ReaderBuilder::new()
@@ -64,6 +69,15 @@ pub fn read_columns(path: &Path, names: &[String]) -> Result<Vec<Vec<f64>>, IoEr
                     ),
                     )
                 })?;
+            if v.abs() > MAX_MAGNITUDE {
+                return Err(IoError::content(
+                    path,
+                    format!(
+                        "row {} (line {line}), column `{name}`: `{cell}` is beyond ±1e15; no volume, fraction or rate is that large (a unit or typing error?), and squaring it overflows the statistics",
+                        row + 1
+                    ),
+                ));
+            }
             col.push(v);
         }
     }
