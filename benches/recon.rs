@@ -17,7 +17,7 @@ use std::process::Command;
 use std::time::{Duration, Instant};
 
 use cinegauge::fft::{CenteredFft2, Direction, LineFft};
-use cinegauge::recon::operator::Encoding;
+use cinegauge::recon::operator::{Encoding, TILE};
 use cinegauge::recon::{self, Params, ReconInput};
 use cinegauge::sampling::{Pattern, SamplingMask, SamplingSpec};
 use criterion::Criterion;
@@ -146,8 +146,9 @@ fn measure(c: &mut Criterion, medians: &Medians) {
         op.normal_lines(x.view(), out.view_mut(), |_, _, _, _| ());
     });
     let ky = LineFft::new(ROWS);
+    // In the shape the operator calls them: one call per (tile, frame, coil) of TILE lines.
     timed("fft/normal-operator".into(), &mut || {
-        line_fft_pair(&ky, COILS * FRAMES, COLS)
+        line_fft_pair(&ky, COILS * FRAMES * COLS.div_ceil(TILE), TILE)
     });
     let t = LineFft::new(FRAMES);
     timed("fft/temporal".into(), &mut || line_fft_pair(&t, COLS, ROWS));

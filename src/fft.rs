@@ -143,8 +143,9 @@ fn shifted_lines(buf: &mut [Complex32], n: usize, fft: &dyn Fft<f32>, scratch: &
     }
 }
 
-/// `dst[c·rows + r] = scale·src[r·cols + c]`, in cache-friendly tiles.
-fn transpose(src: &[Complex32], dst: &mut [Complex32], rows: usize, cols: usize, scale: f32) {
+/// `dst[c·rows + r] = scale·src[r·cols + c]` (a `rows × cols` matrix transposed and
+/// scaled), in cache-friendly tiles.
+pub fn transpose(src: &[Complex32], dst: &mut [Complex32], rows: usize, cols: usize, scale: f32) {
     const T: usize = 16;
     debug_assert!(src.len() == rows * cols && dst.len() == rows * cols);
     for r0 in (0..rows).step_by(T) {

@@ -1,19 +1,24 @@
 //! `cg-sense`: conjugate-gradient SENSE per frame (Pruessmann et al. 2001), with an
 //! optional Tikhonov term.
 //!
-//! Solves `(EᴴE + λ·I) x_f = Eᴴ y_f` for every frame `f` by conjugate gradients; the frames
-//! run in lockstep (one operator application per iteration for all frames) but each has
-//! its own step sizes, so each is exactly its own CG. The relative residual recorded is
-//! `‖r‖ / ‖Eᴴy‖` over all frames.
+//! Solves `(EᴴE + λ·I) x = Eᴴy`. With the readout fully sampled, `EᴴE` acts on every
+//! (frame, column) on its own, so the system splits exactly into independent blocks (a tile
+//! of columns of one frame, see [`Encoding::tile_normal`]); each block runs its own
+//! conjugate gradients with all its vectors in cache. Each block's iterate is at least as
+//! close to the solution (in the block's energy norm) as a CG over the whole frame after
+//! the same number of iterations, since the frame's Krylov space restricted to a block lies
+//! in the block's own. The relative residual recorded is `‖r‖ / ‖Eᴴy‖` over the image.
 
-use ndarray::{Array3, Axis, Zip};
+use ndarray::{Array3, Axis};
 use num_complex::Complex32;
 use rayon::prelude::*;
 
-use super::operator::{converged, transpose_planes, Encoding};
+use super::operator::{transpose_planes, Encoding, TileScratch, RESIDUAL_FLOOR};
 use super::params::{iterations, tolerance};
 use super::sums;
-use super::{coils, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor};
+use super::{
+    coils, kernels, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor,
+};
 
 /// Conjugate-gradient SENSE.
 pub struct CgSense;
@@ -64,81 +69,35 @@ impl Reconstructor for CgSense {
     fn reconstruct(&self, input: &ReconInput, p: &Params) -> Result<ReconOutput, ReconError> {
         let sens = coils::for_input(input, self.id())?;
         let op = Encoding::new(sens.view(), &input.mask.lines, input.fft)?;
-        let (iters, tol, lambda) = (
-            p.count("iterations"),
-            p.get("tolerance"),
-            p.get("lambda") as f32,
-        );
         let b = op.data_adjoint_lines(input.kspace);
+        let settings = Settings {
+            iterations: p.count("iterations"),
+            tolerance: p.get("tolerance"),
+            lambda: p.get("lambda") as f32,
+            values: b.len(),
+        };
         let nf = b.dim().0;
-        let b_norm = frame_dots(&b, &b)
-            .iter()
-            .sum::<f64>()
-            .sqrt()
-            .max(f64::MIN_POSITIVE);
+        let plane = b.dim().1 * b.dim().2;
+        let b_sq: f64 = frame_dots(&b, &b).iter().sum();
+        let blocks: Vec<(usize, usize)> = (0..op.tiles())
+            .flat_map(|t| (0..nf).map(move |f| (t, f)))
+            .collect();
+        let bs = b.as_slice().expect("standard layout");
+        let solved: Vec<Solved> = blocks
+            .par_iter()
+            .map_init(TileScratch::default, |s, &(t, f)| {
+                let (start, len) = op.tile_span(t);
+                let rhs = &bs[f * plane + start..f * plane + start + len];
+                solve_block(&op, (t, f), rhs, b_sq, &settings, s)
+            })
+            .collect();
         let mut x = Array3::<Complex32>::zeros(b.dim());
-        let mut r = b.clone();
-        let mut d = r.clone();
-        let mut q = Array3::<Complex32>::zeros(b.dim());
-        let mut rs = frame_dots(&r, &r);
-        let mut residuals = Vec::new();
-        for _ in 0..iters {
-            // q = (EᴴE + λ) d and ⟨d, q⟩ per frame, in the operator's last pass.
-            let parts = op.normal_lines(d.view(), q.view_mut(), |_, _, q, d| {
-                if lambda > 0.0 {
-                    q.iter_mut().zip(d).for_each(|(q, d)| *q += *d * lambda);
-                }
-                re_dot(d, q)
-            });
-            let dq: Vec<f64> = (0..nf)
-                .map(|f| parts.iter().skip(f).step_by(nf).sum())
-                .collect();
-            // x += α d, r −= α q and the new ‖r‖² per frame, in one pass.
-            let rs_new: Vec<f64> = x
-                .axis_iter_mut(Axis(0))
-                .into_par_iter()
-                .zip(r.axis_iter_mut(Axis(0)))
-                .zip(d.axis_iter(Axis(0)))
-                .zip(q.axis_iter(Axis(0)))
-                .enumerate()
-                .map(|(f, (((mut x, mut r), d), q))| {
-                    let alpha = if dq[f] > 0.0 {
-                        (rs[f] / dq[f]) as f32
-                    } else {
-                        0.0
-                    };
-                    Zip::from(&mut x)
-                        .and(&mut r)
-                        .and(&d)
-                        .and(&q)
-                        .for_each(|x, r, d, q| {
-                            *x += *d * alpha;
-                            *r -= *q * alpha;
-                        });
-                    let r = r.as_slice().expect("standard layout");
-                    re_dot(r, r)
-                })
-                .collect();
-            residuals.push(rs_new.iter().sum::<f64>().sqrt() / b_norm);
-            d.axis_iter_mut(Axis(0))
-                .into_par_iter()
-                .zip(r.axis_iter(Axis(0)))
-                .enumerate()
-                .for_each(|(f, (mut d, r))| {
-                    let beta = if rs[f] > 0.0 {
-                        (rs_new[f] / rs[f]) as f32
-                    } else {
-                        0.0
-                    };
-                    Zip::from(&mut d)
-                        .and(&r)
-                        .for_each(|d, r| *d = *r + *d * beta);
-                });
-            rs = rs_new;
-            if converged(&residuals, tol) {
-                break;
-            }
+        let xs = x.as_slice_mut().expect("standard layout");
+        for (&(t, f), blk) in blocks.iter().zip(&solved) {
+            let (start, len) = op.tile_span(t);
+            xs[f * plane + start..f * plane + start + len].copy_from_slice(&blk.x);
         }
+        let residuals = residual_history(&solved, b_sq);
         let x = transpose_planes(x.view());
         Ok(ReconOutput {
             images: x.mapv(|z| z.norm()),
@@ -146,4 +105,78 @@ impl Reconstructor for CgSense {
             residuals,
         })
     }
+}
+
+/// What every block's conjugate gradients are run with.
+struct Settings {
+    iterations: usize,
+    tolerance: f64,
+    lambda: f32,
+    /// Values of the whole image (every block's length added).
+    values: usize,
+}
+
+/// One block's solution and its `‖r‖²` after each iteration (the first entry `‖b‖²`).
+struct Solved {
+    x: Vec<Complex32>,
+    rs: Vec<f64>,
+}
+
+/// Conjugate gradients on one (tile, frame) block of `(EᴴE + λ) x = Eᴴy`, every vector
+/// of the block in cache for all iterations. A block stops when its residual relative to
+/// its own right-hand side falls below the tolerance (so the whole image's relative
+/// residual does too), or below its share of [`RESIDUAL_FLOOR`] relative to the whole
+/// right-hand side (so that the image's residual is below the floor when all have stopped).
+fn solve_block(
+    op: &Encoding,
+    (t, f): (usize, usize),
+    rhs: &[Complex32],
+    b_sq: f64,
+    set: &Settings,
+    s: &mut TileScratch,
+) -> Solved {
+    let n = rhs.len();
+    // The block's part of the floor, so that the blocks' squares add up below it.
+    let share = n as f64 / set.values as f64;
+    let mut x = vec![Complex32::default(); n];
+    let mut r = rhs.to_vec();
+    let mut d = rhs.to_vec();
+    let mut q = vec![Complex32::default(); n];
+    let mut rs = re_dot(&r, &r);
+    let start = rs;
+    let mut history = vec![rs];
+    if rs == 0.0 {
+        return Solved { x, rs: history };
+    }
+    for _ in 0..set.iterations {
+        op.tile_normal(t, f, &d, &mut q, s);
+        if set.lambda > 0.0 {
+            kernels::add_scaled_real(&mut q, &d, set.lambda);
+        }
+        let dq = re_dot(&d, &q);
+        let alpha = if dq > 0.0 { (rs / dq) as f32 } else { 0.0 };
+        let rs_new = kernels::cg_update(&mut x, &mut r, &d, &q, alpha);
+        history.push(rs_new);
+        if rs_new < RESIDUAL_FLOOR * RESIDUAL_FLOOR * b_sq * share
+            || (set.tolerance > 0.0 && rs_new < set.tolerance * set.tolerance * start)
+        {
+            break;
+        }
+        kernels::cg_direction(&mut d, &r, (rs_new / rs) as f32);
+        rs = rs_new;
+    }
+    Solved { x, rs: history }
+}
+
+/// `‖r‖ / ‖Eᴴy‖` of the whole image after each iteration, a block that stopped early
+/// keeping its last residual.
+fn residual_history(solved: &[Solved], b_sq: f64) -> Vec<f64> {
+    let n = solved.iter().map(|b| b.rs.len() - 1).max().unwrap_or(0);
+    let b_norm = b_sq.sqrt().max(f64::MIN_POSITIVE);
+    (1..=n)
+        .map(|k| {
+            let sum: f64 = solved.iter().map(|b| b.rs[k.min(b.rs.len() - 1)]).sum();
+            sum.sqrt() / b_norm
+        })
+        .collect()
 }

@@ -6,15 +6,23 @@
 
 use num_complex::Complex32;
 
-/// Runs `$body` (a call of an `#[inline(always)]` function) compiled with AVX2 when the CPU
-/// has it, else as the baseline build.
+/// Runs `$body` (a call of an `#[inline(always)]` function) compiled with AVX-512F or AVX2
+/// when the CPU has it, else as the baseline build.
 macro_rules! dispatch {
     ($body:expr) => {{
         #[cfg(target_arch = "x86_64")]
         {
+            #[target_feature(enable = "avx512f")]
+            fn wider<R>(f: impl FnOnce() -> R) -> R {
+                f()
+            }
             #[target_feature(enable = "avx2")]
             fn wide<R>(f: impl FnOnce() -> R) -> R {
                 f()
+            }
+            if std::arch::is_x86_feature_detected!("avx512f") {
+                // SAFETY: the CPU was just checked to support AVX-512F.
+                return unsafe { wider(|| $body) };
             }
             if std::arch::is_x86_feature_detected!("avx2") {
                 // SAFETY: the CPU was just checked to support AVX2.
@@ -35,6 +43,11 @@ enum Store {
 /// `out[i] = a[i]·b[i]`.
 pub fn mul(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
     #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx512f") {
+        // SAFETY: the CPU supports AVX-512F (checked on the line above).
+        return unsafe { avx512::product(out, a, b, false, Store::Set) };
+    }
+    #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx") {
         // SAFETY: the CPU supports AVX (checked on the line above).
         return unsafe { avx::product(out, a, b, false, Store::Set) };
@@ -44,6 +57,11 @@ pub fn mul(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
 
 /// `out[i] = conj(a[i])·b[i]`.
 pub fn conj_mul(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx512f") {
+        // SAFETY: the CPU supports AVX-512F (checked on the line above).
+        return unsafe { avx512::product(out, a, b, true, Store::Set) };
+    }
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx") {
         // SAFETY: the CPU supports AVX (checked on the line above).
@@ -55,6 +73,11 @@ pub fn conj_mul(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
 /// `out[i] += conj(a[i])·b[i]`.
 pub fn conj_mul_add(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
     #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx512f") {
+        // SAFETY: the CPU supports AVX-512F (checked on the line above).
+        return unsafe { avx512::product(out, a, b, true, Store::Add) };
+    }
+    #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx") {
         // SAFETY: the CPU supports AVX (checked on the line above).
         return unsafe { avx::product(out, a, b, true, Store::Add) };
@@ -64,6 +87,11 @@ pub fn conj_mul_add(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
 
 /// `out[i] += c·x[i]` (complex multiply-accumulate with one coefficient).
 pub fn scaled_add(out: &mut [Complex32], c: Complex32, x: &[Complex32]) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx512f") {
+        // SAFETY: the CPU supports AVX-512F (checked on the line above).
+        return unsafe { avx512::scaled_add(out, c, x) };
+    }
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx") {
         // SAFETY: the CPU supports AVX (checked on the line above).
@@ -222,10 +250,237 @@ mod avx {
     }
 }
 
+/// The AVX-512 forms of [`avx`]'s products: eight complex values per step. AVX-512 has no
+/// `addsub`; a masked subtract on the even (real) lanes of the sum does the same, so every
+/// element still sees the plain formula's operations and the bits match the other builds.
+#[cfg(target_arch = "x86_64")]
+mod avx512 {
+    use super::Store;
+    use num_complex::Complex32;
+    use std::arch::x86_64::*;
+
+    /// Lanes that hold real parts.
+    const REAL: __mmask16 = 0x5555;
+
+    /// `addsub(x, y)`: `x − y` in the real lanes, `x + y` in the imaginary ones.
+    #[inline]
+    #[target_feature(enable = "avx512f")]
+    fn addsub(x: __m512, y: __m512) -> __m512 {
+        _mm512_mask_sub_ps(_mm512_add_ps(x, y), REAL, x, y)
+    }
+
+    /// `out ⟵ a·b` or `conj(a)·b` (see [`super::avx::product`]).
+    #[target_feature(enable = "avx512f")]
+    pub(super) fn product(
+        out: &mut [Complex32],
+        a: &[Complex32],
+        b: &[Complex32],
+        conj: bool,
+        store: Store,
+    ) {
+        let n = out.len().min(a.len()).min(b.len());
+        let whole = n / 8 * 8;
+        // One loop per case, so the branches stay out of the loop body.
+        macro_rules! body {
+            ($conj:expr, $add:expr) => {
+                for i in (0..whole).step_by(8) {
+                    // SAFETY: i + 8 ≤ n, so every 16-float access is inside its slice;
+                    // unaligned loads and stores are used.
+                    unsafe {
+                        let po = out.as_mut_ptr().add(i).cast::<f32>();
+                        let va = _mm512_loadu_ps(a.as_ptr().add(i).cast::<f32>());
+                        let vb = _mm512_loadu_ps(b.as_ptr().add(i).cast::<f32>());
+                        let p = _mm512_moveldup_ps(va);
+                        let q = _mm512_movehdup_ps(va);
+                        let swapped = _mm512_permute_ps::<0b1011_0001>(vb);
+                        let (x, y) = (_mm512_mul_ps(p, vb), _mm512_mul_ps(q, swapped));
+                        // conj(a)·b = (pu + qv, pv − qu): the other sign in each lane.
+                        let mut r = if $conj {
+                            _mm512_mask_add_ps(_mm512_sub_ps(x, y), REAL, x, y)
+                        } else {
+                            addsub(x, y)
+                        };
+                        if $add {
+                            r = _mm512_add_ps(_mm512_loadu_ps(po), r);
+                        }
+                        _mm512_storeu_ps(po, r);
+                    }
+                }
+            };
+        }
+        match (conj, store) {
+            (false, Store::Set) => body!(false, false),
+            (false, Store::Add) => body!(false, true),
+            (true, Store::Set) => body!(true, false),
+            (true, Store::Add) => body!(true, true),
+        }
+        for i in whole..n {
+            let v = if conj {
+                a[i].conj() * b[i]
+            } else {
+                a[i] * b[i]
+            };
+            match store {
+                Store::Set => out[i] = v,
+                Store::Add => out[i] += v,
+            }
+        }
+    }
+
+    /// `out ⟵ out + c·x`, eight values per step.
+    #[target_feature(enable = "avx512f")]
+    pub(super) fn scaled_add(out: &mut [Complex32], c: Complex32, x: &[Complex32]) {
+        let n = out.len().min(x.len());
+        let whole = n / 8 * 8;
+        let (p, q) = (_mm512_set1_ps(c.re), _mm512_set1_ps(c.im));
+        for i in (0..whole).step_by(8) {
+            // SAFETY: i + 8 ≤ n, so every 16-float access is inside its slice.
+            unsafe {
+                let px = x.as_ptr().add(i).cast::<f32>();
+                let po = out.as_mut_ptr().add(i).cast::<f32>();
+                let vx = _mm512_loadu_ps(px);
+                let swapped = _mm512_permute_ps::<0b1011_0001>(vx);
+                let r = addsub(_mm512_mul_ps(p, vx), _mm512_mul_ps(q, swapped));
+                _mm512_storeu_ps(po, _mm512_add_ps(_mm512_loadu_ps(po), r));
+            }
+        }
+        for i in whole..n {
+            out[i] += c * x[i];
+        }
+    }
+}
+
 /// `v[i] *= w[i]` for a complex buffer seen as `[re, im, re, im, …]` and real weights given
 /// per float (each weight twice, once for the real and once for the imaginary part).
 pub fn scale(v: &mut [Complex32], w: &[f32]) {
     dispatch!(scale_body(bytemuck::cast_slice_mut(v), w))
+}
+
+/// One conjugate-gradient update, `x += α·d`, `r −= α·q`, returning the new `‖r‖²`: f32
+/// sums over eight lanes per block of [`super::sums::BLOCK`] values, added in f64.
+pub fn cg_update(
+    x: &mut [Complex32],
+    r: &mut [Complex32],
+    d: &[Complex32],
+    q: &[Complex32],
+    alpha: f32,
+) -> f64 {
+    dispatch!(cg_update_body(x, r, d, q, alpha))
+}
+
+/// The next conjugate direction, `d = r + β·d`.
+pub fn cg_direction(d: &mut [Complex32], r: &[Complex32], beta: f32) {
+    dispatch!(cg_direction_body(d, r, beta))
+}
+
+/// `d += λ·x` (the Tikhonov term of a normal equation).
+pub fn add_scaled_real(d: &mut [Complex32], x: &[Complex32], lambda: f32) {
+    dispatch!(d.iter_mut().zip(x).for_each(|(d, x)| *d += *x * lambda))
+}
+
+/// A unit gradient step on `½‖E x − y‖²` given `b = Eᴴy`: `g = z − (g − b)` where `g`
+/// holds `EᴴE z`.
+pub fn gradient_step(g: &mut [Complex32], z: &[Complex32], b: &[Complex32]) {
+    dispatch!(g
+        .iter_mut()
+        .zip(z)
+        .zip(b)
+        .for_each(|((g, z), b)| *g = *z - (*g - *b)))
+}
+
+/// The FISTA momentum step `z = new + m·(new − old)`, returning `(‖new − old‖², ‖new‖²)`
+/// (f32 sums over eight lanes per block of [`super::sums::BLOCK`] values, added in f64).
+pub fn momentum(new: &[Complex32], old: &[Complex32], z: &mut [Complex32], m: f32) -> (f64, f64) {
+    dispatch!(momentum_body(new, old, z, m))
+}
+
+/// Complex soft thresholding with a scale, `v = s·v·max(|v| − t, 0)/|v|`, in place.
+pub fn soft_scaled(v: &mut [Complex32], t: f32, scale: f32) {
+    dispatch!(v.iter_mut().for_each(|z| {
+        // sqrt of the squared norm rather than `norm()` (hypot, several times slower): the
+        // values are far from overflow.
+        let m = z.norm_sqr().sqrt();
+        let f = if m > t { (m - t) / m * scale } else { 0.0 };
+        *z *= f;
+    }))
+}
+
+#[inline(always)]
+fn momentum_body(new: &[Complex32], old: &[Complex32], z: &mut [Complex32], m: f32) -> (f64, f64) {
+    const LANES: usize = 8;
+    let block = super::sums::BLOCK;
+    let (mut num, mut den) = (0f64, 0f64);
+    for ((new, old), z) in new
+        .chunks(block)
+        .zip(old.chunks(block))
+        .zip(z.chunks_mut(block))
+    {
+        let (mut n, mut d) = ([0f32; LANES], [0f32; LANES]);
+        let whole = new.len() / LANES * LANES;
+        for i in 0..new.len() {
+            z[i] = new[i] + (new[i] - old[i]) * m;
+        }
+        for (a, b) in new[..whole]
+            .chunks_exact(LANES)
+            .zip(old[..whole].chunks_exact(LANES))
+        {
+            for k in 0..LANES {
+                let (dr, di) = (a[k].re - b[k].re, a[k].im - b[k].im);
+                n[k] += dr * dr + di * di;
+                d[k] += a[k].re * a[k].re + a[k].im * a[k].im;
+            }
+        }
+        let (mut tn, mut td) = (0f32, 0f32);
+        for (a, b) in new[whole..].iter().zip(&old[whole..]) {
+            tn += (*a - *b).norm_sqr();
+            td += a.norm_sqr();
+        }
+        num += f64::from(n.iter().sum::<f32>() + tn);
+        den += f64::from(d.iter().sum::<f32>() + td);
+    }
+    (num, den)
+}
+
+#[inline(always)]
+fn cg_update_body(
+    x: &mut [Complex32],
+    r: &mut [Complex32],
+    d: &[Complex32],
+    q: &[Complex32],
+    alpha: f32,
+) -> f64 {
+    const LANES: usize = 8;
+    let block = super::sums::BLOCK;
+    let mut total = 0f64;
+    for (((x, r), d), q) in x
+        .chunks_mut(block)
+        .zip(r.chunks_mut(block))
+        .zip(d.chunks(block))
+        .zip(q.chunks(block))
+    {
+        let mut acc = [0f32; LANES];
+        let mut tail = 0f32;
+        let whole = r.len() / LANES * LANES;
+        for i in 0..r.len() {
+            x[i] += d[i] * alpha;
+            r[i] -= q[i] * alpha;
+        }
+        for v in r[..whole].chunks_exact(LANES) {
+            for k in 0..LANES {
+                acc[k] += v[k].re * v[k].re + v[k].im * v[k].im;
+            }
+        }
+        for v in &r[whole..] {
+            tail += v.norm_sqr();
+        }
+        total += f64::from(acc.iter().sum::<f32>() + tail);
+    }
+    total
+}
+
+#[inline(always)]
+fn cg_direction_body(d: &mut [Complex32], r: &[Complex32], beta: f32) {
+    d.iter_mut().zip(r).for_each(|(d, r)| *d = *r + *d * beta);
 }
 
 #[inline(always)]

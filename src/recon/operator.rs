@@ -45,6 +45,13 @@ impl Workspace {
     }
 }
 
+/// Per-thread scratch of [`Encoding::tile_normal`]; contents on entry do not matter.
+#[derive(Default)]
+pub struct TileScratch {
+    buf: Vec<Complex32>,
+    fft: Vec<Complex32>,
+}
+
 /// The encoding operator of one slice.
 pub struct Encoding<'a> {
     sens: CowArray<'a, Complex32, Ix3>,
@@ -166,6 +173,63 @@ impl<'a> Encoding<'a> {
         self.adjoint_in_place(x, ws);
     }
 
+    /// Number of column tiles of [`TILE`] ky lines (the last one may be narrower).
+    pub fn tiles(&self) -> usize {
+        self.dims().3.div_ceil(TILE)
+    }
+
+    /// The values `start..start + len` of a readout-major frame plane that tile `t` covers.
+    pub fn tile_span(&self, t: usize) -> (usize, usize) {
+        let (_, _, r, c) = self.dims();
+        let start = t * TILE;
+        (start * r, (c - start).min(TILE) * r)
+    }
+
+    /// `out = EᴴE x` on tile `t` of frame `f`: `x` and `out` hold that tile's values of
+    /// the readout-major frame plane (see [`tile_span`](Self::tile_span)).
+    ///
+    /// `EᴴE` acts on each (frame, column) on its own (the sensitivities are pointwise and
+    /// the ky transforms run along a column), so a tile is a closed system: a method can
+    /// iterate on one tile while it stays in cache.
+    ///
+    /// # Panics
+    /// If `x` or `out` is not the tile's length.
+    pub fn tile_normal(
+        &self,
+        t: usize,
+        f: usize,
+        x: &[Complex32],
+        out: &mut [Complex32],
+        s: &mut TileScratch,
+    ) {
+        let (_, _, r, c) = self.dims();
+        let (start, len) = self.tile_span(t);
+        assert!(
+            x.len() == len && out.len() == len,
+            "tile {t} has {len} values, got {} and {}",
+            x.len(),
+            out.len()
+        );
+        let sens = self.sens_t.as_slice().expect("standard layout");
+        let keep = self.keep.row(f);
+        let keep = keep.as_slice().expect("standard layout");
+        s.buf.resize(len, Complex32::default());
+        for (ci, sc) in sens.chunks_exact(r * c).enumerate() {
+            let sc = &sc[start..start + len];
+            kernels::mul(&mut s.buf, sc, x);
+            self.ky.process(&mut s.buf, Direction::Forward, &mut s.fft);
+            for line in s.buf.chunks_exact_mut(r) {
+                kernels::scale(line, keep);
+            }
+            self.ky.process(&mut s.buf, Direction::Inverse, &mut s.fft);
+            if ci == 0 {
+                kernels::conj_mul(out, sc, &s.buf);
+            } else {
+                kernels::conj_mul_add(out, sc, &s.buf);
+            }
+        }
+    }
+
     /// `out = EᴴE x` for readout-major images (`[frame, col, row]`, standard layout).
     ///
     /// The columns are cut into tiles of [`TILE`] ky lines, processed in parallel; each tile
@@ -192,46 +256,24 @@ impl<'a> Encoding<'a> {
             x.dim(),
             out.dim()
         );
-        let sens = self.sens_t.as_slice().expect("standard layout");
-        let keep = &self.keep;
         let per_tile: Vec<Vec<T>> = out
             .axis_chunks_iter_mut(Axis(1), TILE)
             .into_par_iter()
             .zip(x.axis_chunks_iter(Axis(1), TILE))
             .enumerate()
-            .map_init(
-                || (Vec::<Complex32>::new(), Vec::<Complex32>::new()),
-                |(buf, scratch), (t, (mut ot, xt))| {
-                    let len = ot.dim().1 * r;
-                    let start = t * TILE * r;
-                    buf.resize(len, Complex32::default());
-                    (0..nf)
-                        .map(|f| {
-                            let mut of = ot.index_axis_mut(Axis(0), f);
-                            let of = of.as_slice_mut().expect("contiguous tile");
-                            let xf = xt.index_axis(Axis(0), f);
-                            let xf = xf.as_slice().expect("contiguous tile");
-                            let keep = keep.row(f);
-                            let keep = keep.as_slice().expect("standard layout");
-                            for (ci, s) in sens.chunks_exact(r * c).enumerate() {
-                                let s = &s[start..start + len];
-                                kernels::mul(buf, s, xf);
-                                self.ky.process(buf, Direction::Forward, scratch);
-                                for line in buf.chunks_exact_mut(r) {
-                                    kernels::scale(line, keep);
-                                }
-                                self.ky.process(buf, Direction::Inverse, scratch);
-                                if ci == 0 {
-                                    kernels::conj_mul(of, s, buf);
-                                } else {
-                                    kernels::conj_mul_add(of, s, buf);
-                                }
-                            }
-                            epilogue(f, start, of, xf)
-                        })
-                        .collect()
-                },
-            )
+            .map_init(TileScratch::default, |s, (t, (mut ot, xt))| {
+                let (start, _) = self.tile_span(t);
+                (0..nf)
+                    .map(|f| {
+                        let mut of = ot.index_axis_mut(Axis(0), f);
+                        let of = of.as_slice_mut().expect("contiguous tile");
+                        let xf = xt.index_axis(Axis(0), f);
+                        let xf = xf.as_slice().expect("contiguous tile");
+                        self.tile_normal(t, f, xf, of, s);
+                        epilogue(f, start, of, xf)
+                    })
+                    .collect()
+            })
             .collect();
         per_tile.into_iter().flatten().collect()
     }
