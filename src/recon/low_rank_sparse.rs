@@ -8,20 +8,25 @@
 //! ```
 //! The SVT works on the small `frame × frame` Gram matrix: `MᴴM = V Σ² Vᴴ`, then
 //! `L = M V diag(max(σ − τ, 0)/σ) Vᴴ` (f64 Hermitian eigen-decomposition by nalgebra).
+//!
+//! Everything but the Gram matrix is pointwise in the pixels or acts per (frame, column),
+//! so each iteration is one pass over column tiles held in cache: the tile's `L`, `S` and
+//! `M` are updated, and its part of the next Gram matrix (of `M_k − S_k`) is summed while the
+//! tile is still hot; only the `frame × frame` eigen-decomposition runs between passes.
 
 use nalgebra::{DMatrix, SymmetricEigen};
-use ndarray::{Array2, Array3, Axis, Zip};
+use ndarray::{Array2, Array3, ArrayView2, ArrayViewMut2, Axis};
 use num_complex::{Complex32, Complex64};
 use rayon::prelude::*;
 
-use super::operator::{converged, gradient_step, transpose_planes, Encoding};
+use super::operator::{converged, transpose_planes, Encoding, TileScratch, TILE};
 use super::params::{iterations, tolerance};
-use super::sparsity::{xf_peak, xf_shrink};
-use super::sums::{self, relative_change};
+use super::sparsity::{xf_peak, SeriesShrink};
+use super::sums;
 use super::{
     coils, kernels, ParamSpec, Params, ReconError, ReconInput, ReconOutput, Reconstructor,
 };
-use crate::fft::TemporalFft;
+use crate::fft::{LineFft, TemporalFft};
 
 /// Low-rank plus sparse.
 pub struct LowRankSparse;
@@ -45,43 +50,31 @@ static PARAMS: [ParamSpec; 4] = [
     },
 ];
 
-/// Pixels per block of the SVT's Gram and recombination passes (all frames of a block,
+/// Pixels per block of [`svt`]'s Gram and recombination passes (all frames of a block,
 /// 24 × 512 complex values, stay in cache).
 const PIXELS: usize = 512;
 
-/// Singular-value thresholding of the Casorati matrix of `x` (`[frame, a, b]`) with
-/// threshold `rel × σ_max`, written to `out`.
-///
-/// Both passes go block by block over the pixels, in parallel: the Gram matrix `MᴴM` as a
-/// sum of per-block Gram matrices (added in block order, so the result does not depend on
-/// the thread count), and `L = M W` with `W = V diag(max(σ − τ, 0)/σ) Vᴴ`.
-pub fn svt(x: &Array3<Complex32>, rel: f64, out: &mut Array3<Complex32>) {
-    let (nf, na, nb) = x.dim();
-    let n = na * nb;
-    let m = x
-        .view()
-        .into_shape_with_order((nf, n))
-        .expect("standard layout");
-    let pairs: Vec<(usize, usize)> = (0..nf).flat_map(|i| (i..nf).map(move |j| (i, j))).collect();
-    let blocks: Vec<Vec<Complex64>> = m
-        .axis_chunks_iter(Axis(1), PIXELS)
-        .into_par_iter()
-        .map(|blk| {
-            pairs
-                .iter()
-                .map(|&(i, j)| {
-                    let (a, b) = (blk.row(i), blk.row(j));
-                    sums::dot(
-                        a.as_slice().expect("contiguous block row"),
-                        b.as_slice().expect("contiguous block row"),
-                    )
-                })
-                .collect()
-        })
-        .collect();
+/// Upper triangle (`i ≤ j`, row by row) of the Gram matrix `CᴴC` of a Casorati block `c`
+/// (`[frame, pixel]`, rows contiguous): `Σ_p conj(c[i, p])·c[j, p]`.
+fn gram_part(c: ArrayView2<Complex32>) -> Vec<Complex64> {
+    let nf = c.nrows();
+    let row = |i: usize| c.row(i).to_slice().expect("contiguous Casorati rows");
+    (0..nf)
+        .flat_map(|i| (i..nf).map(move |j| (i, j)))
+        .map(|(i, j)| sums::dot(row(i), row(j)))
+        .collect()
+}
+
+/// The Hermitian Gram matrix from the blocks' upper triangles, added in the order given (so
+/// the result does not depend on the thread count).
+fn gram_matrix<'p>(
+    nf: usize,
+    parts: impl IntoIterator<Item = &'p [Complex64]>,
+) -> DMatrix<Complex64> {
     let mut gram = DMatrix::<Complex64>::zeros(nf, nf);
-    for blk in &blocks {
-        for (&(i, j), v) in pairs.iter().zip(blk) {
+    for part in parts {
+        let pairs = (0..nf).flat_map(|i| (i..nf).map(move |j| (i, j)));
+        for ((i, j), v) in pairs.zip(part) {
             gram[(i, j)] += *v;
         }
     }
@@ -90,10 +83,16 @@ pub fn svt(x: &Array3<Complex32>, rel: f64, out: &mut Array3<Complex32>) {
             gram[(i, j)] = gram[(j, i)].conj();
         }
     }
+    gram
+}
+
+/// The SVT's recombination weights from the Gram matrix `CᴴC = V Σ² Vᴴ`:
+/// `W = V diag(max(σ − τ, 0)/σ) Vᴴ` with `τ = rel × σ_max`, so that `SVT(C) = C W`.
+fn threshold_weights(gram: DMatrix<Complex64>, rel: f64) -> Array2<Complex32> {
+    let nf = gram.nrows();
     let eig = SymmetricEigen::new(gram);
     let sigma: Vec<f64> = eig.eigenvalues.iter().map(|l| l.max(0.0).sqrt()).collect();
     let tau = rel * sigma.iter().cloned().fold(0.0, f64::max);
-    // L[f'] = Σ_f W[f, f'] · M[f]  (Casorati columns are frames).
     let v = &eig.eigenvectors;
     let w: Vec<f64> = sigma
         .iter()
@@ -105,10 +104,46 @@ pub fn svt(x: &Array3<Complex32>, rel: f64, out: &mut Array3<Complex32>) {
             }
         })
         .collect();
-    let wm = Array2::from_shape_fn((nf, nf), |(a, b)| {
+    Array2::from_shape_fn((nf, nf), |(a, b)| {
         let s: Complex64 = (0..nf).map(|k| v[(a, k)] * w[k] * v[(b, k)].conj()).sum();
         Complex32::new(s.re as f32, s.im as f32)
-    });
+    })
+}
+
+/// `out = c W` for a Casorati block (`[frame, pixel]`, rows contiguous):
+/// `out[f'] = Σ_f W[f, f']·c[f]`.
+fn recombine(c: ArrayView2<Complex32>, w: &Array2<Complex32>, mut out: ArrayViewMut2<Complex32>) {
+    for (fo, mut row) in out.outer_iter_mut().enumerate() {
+        let row = row.as_slice_mut().expect("contiguous Casorati rows");
+        row.fill(Complex32::default());
+        for (fi, src) in c.outer_iter().enumerate() {
+            let k = w[(fi, fo)];
+            if k != Complex32::default() {
+                kernels::scaled_add(row, k, src.to_slice().expect("contiguous Casorati rows"));
+            }
+        }
+    }
+}
+
+/// Singular-value thresholding of the Casorati matrix of `x` (`[frame, a, b]`) with
+/// threshold `rel × σ_max`, written to `out`.
+///
+/// Both passes go block by block over the pixels, in parallel: the Gram matrix `MᴴM` as a
+/// sum of per-block Gram matrices (added in block order), and `L = M W`. The iteration
+/// below runs the same pieces per column tile.
+pub fn svt(x: &Array3<Complex32>, rel: f64, out: &mut Array3<Complex32>) {
+    let (nf, na, nb) = x.dim();
+    let n = na * nb;
+    let m = x
+        .view()
+        .into_shape_with_order((nf, n))
+        .expect("standard layout");
+    let parts: Vec<Vec<Complex64>> = m
+        .axis_chunks_iter(Axis(1), PIXELS)
+        .into_par_iter()
+        .map(gram_part)
+        .collect();
+    let w = threshold_weights(gram_matrix(nf, parts.iter().map(Vec::as_slice)), rel);
     let mut o = out
         .view_mut()
         .into_shape_with_order((nf, n))
@@ -116,18 +151,90 @@ pub fn svt(x: &Array3<Complex32>, rel: f64, out: &mut Array3<Complex32>) {
     o.axis_chunks_iter_mut(Axis(1), PIXELS)
         .into_par_iter()
         .zip(m.axis_chunks_iter(Axis(1), PIXELS))
-        .for_each(|(mut ob, mb)| {
-            for (fo, mut row) in ob.outer_iter_mut().enumerate() {
-                let row = row.as_slice_mut().expect("contiguous block row");
-                row.fill(Complex32::default());
-                for (fi, src) in mb.outer_iter().enumerate() {
-                    let c = wm[(fi, fo)];
-                    if c != Complex32::default() {
-                        kernels::scaled_add(row, c, src.as_slice().expect("contiguous block row"));
-                    }
-                }
-            }
-        });
+        .for_each(|(ob, mb)| recombine(mb, &w, ob));
+}
+
+/// One column tile of the iteration (all frames, frame-major `[frame][value]`, the values
+/// [`Encoding::tile_span`] names in each readout-major frame plane).
+struct Tile {
+    /// `Eᴴy`.
+    b: Vec<Complex32>,
+    m: Vec<Complex32>,
+    s: Vec<Complex32>,
+    l: Vec<Complex32>,
+}
+
+/// Per-thread scratch of [`Tile::step`].
+struct Scratch<'a> {
+    op: TileScratch,
+    shrink: SeriesShrink<'a>,
+    t: Vec<Complex32>,
+    g: Vec<Complex32>,
+}
+
+/// What one tile contributes to the image-wide quantities of an iteration.
+struct Part {
+    /// `(‖M_k − M_{k−1}‖², ‖M_k‖²)` on the tile.
+    change: (f64, f64),
+    /// Upper triangle of the Gram matrix of `M_k − S_k` on the tile (the next SVT's).
+    gram: Vec<Complex64>,
+}
+
+impl Tile {
+    /// One iteration on the tile, given the SVT weights `w` of the image-wide Gram matrix of
+    /// `M_{k−1} − S_{k−1}`: `L_k`, `S_k` and `M_k` are pointwise in the pixels apart from
+    /// the data term, which acts per (frame, column), so the whole step runs in cache.
+    fn step(
+        &mut self,
+        op: &Encoding,
+        t: usize,
+        w: &Array2<Complex32>,
+        lambda_s: f32,
+        sc: &mut Scratch,
+    ) -> Part {
+        let nf = w.nrows();
+        let len = self.b.len() / nf;
+        // T = M − S and S_k = Λ(M − L), both from the previous iterate.
+        difference(&self.m, &self.s, &mut sc.t);
+        difference(&self.m, &self.l, &mut self.s);
+        sc.shrink.apply(&mut self.s, lambda_s);
+        // L_k = T W.
+        let l = ArrayViewMut2::from_shape((nf, len), &mut self.l[..]).expect("tile shape");
+        recombine(casorati(&sc.t, nf), w, l);
+        // M_k = X − (EᴴE X − Eᴴy) with X = L_k + S_k, frame by frame.
+        sc.t.iter_mut()
+            .zip(&self.l)
+            .zip(&self.s)
+            .for_each(|((x, l), s)| *x = *l + *s);
+        sc.g.resize(self.b.len(), Complex32::default());
+        for (f, ((gf, xf), bf)) in
+            sc.g.chunks_exact_mut(len)
+                .zip(sc.t.chunks_exact(len))
+                .zip(self.b.chunks_exact(len))
+                .enumerate()
+        {
+            op.tile_normal(t, f, xf, gf, &mut sc.op);
+            kernels::gradient_step(gf, xf, bf);
+        }
+        let change = sums::change(&sc.g, &self.m);
+        std::mem::swap(&mut self.m, &mut sc.g);
+        difference(&self.m, &self.s, &mut sc.t);
+        Part {
+            change,
+            gram: gram_part(casorati(&sc.t, nf)),
+        }
+    }
+}
+
+/// A tile's values as its Casorati block `[frame, pixel]`.
+fn casorati(v: &[Complex32], nf: usize) -> ArrayView2<'_, Complex32> {
+    ArrayView2::from_shape((nf, v.len() / nf), v).expect("whole frames")
+}
+
+/// `out = a − b`.
+fn difference(a: &[Complex32], b: &[Complex32], out: &mut Vec<Complex32>) {
+    out.clear();
+    out.extend(a.iter().zip(b).map(|(a, b)| *a - *b));
 }
 
 impl Reconstructor for LowRankSparse {
@@ -147,49 +254,69 @@ impl Reconstructor for LowRankSparse {
         let sens = coils::for_input(input, self.id())?;
         let op = Encoding::new(sens.view(), &input.mask.lines, input.fft)?;
         let b = op.data_adjoint_lines(input.kspace);
-        let (nf, nr, nc) = b.dim();
-        let tf = TemporalFft::new(nf);
-        let lambda_s = p.get("lambda_s") as f32 * xf_peak(&b, &tf);
+        let nf = b.dim().0;
+        let lambda_s = p.get("lambda_s") as f32 * xf_peak(&b, &TemporalFft::new(nf));
         let (iters, tol, lambda_l) = (p.count("iterations"), p.get("tolerance"), p.get("lambda_l"));
-        let mut m = b.clone();
-        let mut l_prev = b.clone();
-        let mut l = Array3::<Complex32>::zeros((nf, nr, nc));
-        let mut s = Array3::<Complex32>::zeros((nf, nr, nc));
-        let mut tmp = Array3::<Complex32>::zeros((nf, nr, nc));
-        let mut g = Array3::<Complex32>::zeros((nf, nr, nc));
+        let lines = LineFft::new(nf);
+        // M_0 = L_0 = Eᴴy, S_0 = 0 (so the first T = M − S is Eᴴy).
+        let mut tiles: Vec<Tile> = b
+            .axis_chunks_iter(Axis(1), TILE)
+            .map(|bt| {
+                // `bt.iter()` runs frame by frame through the tile's values.
+                let b: Vec<Complex32> = bt.iter().copied().collect();
+                Tile {
+                    m: b.clone(),
+                    l: b.clone(),
+                    s: vec![Complex32::default(); b.len()],
+                    b,
+                }
+            })
+            .collect();
+        let mut grams: Vec<Vec<Complex64>> = tiles
+            .par_iter()
+            .map(|t| {
+                gram_part(
+                    ArrayView2::from_shape((nf, t.b.len() / nf), &t.b[..]).expect("tile shape"),
+                )
+            })
+            .collect();
         let mut residuals = Vec::new();
         for _ in 0..iters {
-            // tmp = M − S and S = M − L_prev in one pass.
-            Zip::from(&mut tmp)
-                .and(&mut s)
-                .and(&m)
-                .and(&l_prev)
-                .par_for_each(|t, s, m, lp| {
-                    *t = *m - *s;
-                    *s = *m - *lp;
-                });
-            svt(&tmp, lambda_l, &mut l);
-            xf_shrink(s.view_mut(), lambda_s, &tf);
-            Zip::from(&mut tmp)
-                .and(&l)
-                .and(&s)
-                .par_for_each(|t, l, s| *t = *l + *s);
-            // M_new = (L + S) − (EᴴE(L + S) − Eᴴy); keep the old M in g for the change.
-            op.normal_lines(tmp.view(), g.view_mut(), gradient_step(&b));
-            residuals.push(relative_change(&g, &m));
-            std::mem::swap(&mut m, &mut g);
-            std::mem::swap(&mut l_prev, &mut l);
+            let w = threshold_weights(gram_matrix(nf, grams.iter().map(Vec::as_slice)), lambda_l);
+            let parts: Vec<Part> = tiles
+                .par_iter_mut()
+                .enumerate()
+                .map_init(
+                    || Scratch {
+                        op: TileScratch::default(),
+                        shrink: SeriesShrink::new(&lines),
+                        t: Vec::new(),
+                        g: Vec::new(),
+                    },
+                    |sc, (t, tile)| tile.step(&op, t, &w, lambda_s, sc),
+                )
+                .collect();
+            let (num, den) = parts
+                .iter()
+                .fold((0.0, 0.0), |(n, d), p| (n + p.change.0, d + p.change.1));
+            residuals.push((num / den.max(f64::MIN_POSITIVE)).sqrt());
+            grams = parts.into_iter().map(|p| p.gram).collect();
             if converged(&residuals, tol) {
                 break;
             }
         }
-        Zip::from(&mut tmp)
-            .and(&l_prev)
-            .and(&s)
-            .par_for_each(|t, l, s| *t = *l + *s);
-        let tmp = transpose_planes(tmp.view());
+        // The image L + S, back in the readout-major layout and then row-major.
+        let mut x = Array3::<Complex32>::zeros(b.dim());
+        x.axis_chunks_iter_mut(Axis(1), TILE)
+            .zip(&tiles)
+            .for_each(|(mut xt, tile)| {
+                xt.iter_mut()
+                    .zip(tile.l.iter().zip(&tile.s))
+                    .for_each(|(o, (l, s))| *o = *l + *s);
+            });
+        let x = transpose_planes(x.view());
         Ok(ReconOutput {
-            images: tmp.mapv(|z| z.norm()),
+            images: x.mapv(|z| z.norm()),
             iterations: residuals.len(),
             residuals,
         })

@@ -45,6 +45,16 @@ pub fn dot(a: &[Complex32], b: &[Complex32]) -> Complex64 {
         .sum()
 }
 
+/// `(‖a − b‖², ‖a‖²)` (serial; for per-tile sums inside parallel loops).
+pub fn change(a: &[Complex32], b: &[Complex32]) -> (f64, f64) {
+    a.chunks(BLOCK)
+        .zip(b.chunks(BLOCK))
+        .map(|(x, y)| block_change(x, y))
+        .fold((0.0, 0.0), |(n, d), (pn, pd)| {
+            (n + f64::from(pn), d + f64::from(pd))
+        })
+}
+
 /// `‖a − b‖ / ‖a‖` of two standard-layout arrays, blocks in parallel: the relative
 /// change between two iterates.
 ///
@@ -108,6 +118,9 @@ mod tests {
                 &Array3::from_shape_vec(shape, a.clone()).unwrap(),
                 &Array3::from_shape_vec(shape, b.clone()).unwrap(),
             );
+            assert!((got - want).abs() <= 1e-6 * want, "n={n}: {got} vs {want}");
+            let (cn, cd) = change(&a, &b);
+            let got = (cn / cd).sqrt();
             assert!((got - want).abs() <= 1e-6 * want, "n={n}: {got} vs {want}");
         }
     }
