@@ -10,7 +10,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::geometry::Geometry;
 use crate::segment::grow::{from_gray, to_gray};
-use crate::stats::image_quality::{mean_in, nrmse, psnr, ssim, ssim_map};
+use crate::stats::image_quality::{mean_in, nrmse, psnr, ssim_map, ssim_of_map};
 use crate::stats::overlap::{dice, hausdorff95};
 
 /// LV region for the local SSIM: the reference's mask dilated by this many pixels.
@@ -72,7 +72,7 @@ pub fn fidelity(
             let t = t64.slice(ndarray::s![s, f, .., ..]);
             let r = r64.slice(ndarray::s![s, f, .., ..]);
             let map = ssim_map(t, r, range);
-            let whole = ssim(t, r, range);
+            let whole = ssim_of_map(map.view());
             let m = ref_masks.slice(ndarray::s![s, f, .., ..]);
             let near = if m.iter().any(|&b| b) {
                 let region = from_gray(&dilate(&to_gray(m), Norm::LInf, LV_MARGIN_PX));
