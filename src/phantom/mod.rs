@@ -416,14 +416,18 @@ impl Phantom {
             .enumerate()
             .for_each(|(frame, (mut img, mut frac))| {
                 let scene = &self.scenes[frame];
+                let sections: Vec<_> = through
+                    .iter()
+                    .map(|dz| scene.section(z0 + dz * t))
+                    .collect();
                 for row in 0..r {
                     for col in 0..c {
                         let (x, y) = self.pixel_xy_mm(row as f64, col as f64);
                         let (mut s, mut p) = (0.0f32, 0.0f32);
-                        for dz in &through {
+                        for section in &sections {
                             for dy in &inplane {
                                 for dx in &inplane {
-                                    let smp = scene.sample(x + dx * px, y + dy * px, z0 + dz * t);
+                                    let smp = section.sample(x + dx * px, y + dy * px);
                                     s += smp.signal;
                                     p += f32::from(u8::from(smp.lv_pool));
                                 }

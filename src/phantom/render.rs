@@ -92,91 +92,70 @@ fn inside_ellipse(dx: f64, dy: f64, ax: f64, ay: f64) -> bool {
     (dx / ax).powi(2) + (dy / ay).powi(2) <= 1.0
 }
 
+/// A scene cut at height `z`: everything that depends on `z` alone worked out once, for
+/// classifying many in-plane points (the renderer's sub-samples).
+pub struct Section<'a> {
+    scene: &'a Scene,
+    /// Cavity semi-axes `(a·s, b·s)` where the plane cuts the cavity.
+    cavity: Option<(f64, f64)>,
+    /// Papillary discs' centres and squared radius, where the plane crosses their span.
+    papillary: Option<([(f64, f64); 2], f64)>,
+    /// Atrial blood semi-axes, where the plane cuts the atrium.
+    atrium: Option<(f64, f64)>,
+    /// Epicardial scale `s` and semi-axes `((a + w)·s, (b + w)·s)`.
+    epi: Option<(f64, f64, f64)>,
+    /// RV semi-axes, in the RV's extent along the long axis.
+    rv: Option<(f64, f64)>,
+}
+
 impl Scene {
     /// Classifies the point `(x, y, z)` (mm; x along columns, y along rows, z along the normal).
     pub fn sample(&self, x: f64, y: f64, z: f64) -> Sample {
-        let (cx, cy) = self.lv_centre;
-        let (dx, dy) = (x - cx, y - cy);
+        self.section(z).sample(x, y)
+    }
+
+    /// The scene cut at height `z` (mm along the normal).
+    pub fn section(&self, z: f64) -> Section<'_> {
         let lv = &self.lv;
-        if let Some(s) = lv.cavity_scale(z) {
-            if inside_ellipse(dx, dy, lv.a * s, lv.b * s) {
-                let pap = self.in_papillary(dx, dy, z, s);
-                let signal = if pap {
-                    signal::MYOCARDIUM
-                } else {
-                    signal::LV_BLOOD
-                };
-                return Sample {
-                    signal,
-                    lv_pool: true,
-                    papillary: pap,
-                };
-            }
-        }
-        if let Some(signal) = self.atrium_signal(dx, dy, z) {
-            return tissue(signal);
-        }
+        let cavity_s = lv.cavity_scale(z);
+        let papillary = cavity_s.filter(|_| self.papillary_span(z)).map(|s| {
+            let r = self.papillary_radius_mm * s;
+            let centre = |(ang, frac): (f64, f64)| {
+                (frac * lv.a * s * ang.cos(), frac * lv.b * s * ang.sin())
+            };
+            (
+                [centre(PAPILLARY_SITES[0]), centre(PAPILLARY_SITES[1])],
+                r * r,
+            )
+        });
+        let la = &self.atrium;
+        let u = z - lv.z_base;
+        let atrium = (u > 0.0 && u <= la.height_mm).then(|| {
+            let s = (1.0 - (u / la.height_mm).powi(2)).sqrt();
+            (la.axes.0 * s, la.axes.1 * s)
+        });
         let epi = lv.epi_scale(z);
         // The RV follows the epicardial profile in z, from 12 mm above the apex to the base.
         let rv = (z > lv.z_apex() + 12.0 && z <= lv.z_base).then(|| {
             let s = epi.unwrap_or(0.0);
-            let (rx, ry) = (self.rv_axes.0 * s, self.rv_axes.1 * s);
-            (rx, ry, dx - self.rv_offset.0, dy - self.rv_offset.1)
+            (self.rv_axes.0 * s, self.rv_axes.1 * s)
         });
-        if let Some(s) = epi {
-            let (ea, eb) = ((lv.a + lv.wall) * s, (lv.b + lv.wall) * s);
-            if inside_ellipse(dx, dy, ea, eb) {
-                if let (Some(t), Some(_)) = (self.thin_septum_mm, rv) {
-                    if self.beyond_thin_septum(dx, dy, s, t) {
-                        return tissue(signal::RV_BLOOD);
-                    }
-                }
-                return tissue(signal::MYOCARDIUM);
-            }
+        Section {
+            scene: self,
+            cavity: cavity_s.map(|s| (lv.a * s, lv.b * s)),
+            papillary,
+            atrium,
+            epi: epi.map(|s| (s, (lv.a + lv.wall) * s, (lv.b + lv.wall) * s)),
+            rv,
         }
-        if let Some((rx, ry, rdx, rdy)) = rv {
-            if rx > 0.0 && inside_ellipse(rdx, rdy, rx, ry) {
-                return tissue(signal::RV_BLOOD);
-            }
-            if rx > 0.0 && inside_ellipse(rdx, rdy, rx + 3.0, ry + 3.0) {
-                return tissue(signal::MYOCARDIUM);
-            }
-        }
-        let (bx, by) = self.body_axes;
-        if !inside_ellipse(x, y, bx, by) {
-            return tissue(signal::AIR);
-        }
-        if !inside_ellipse(x, y, bx - self.fat_mm, by - self.fat_mm) {
-            return tissue(signal::FAT);
-        }
-        for ((lx, ly), (ax, ay)) in self.lungs {
-            if inside_ellipse(x - lx, y - ly, ax, ay) {
-                return tissue(signal::LUNG);
-            }
-        }
-        tissue(signal::TISSUE)
     }
 
-    /// Signal of the atrium, its wall or its dark surroundings at `(dx, dy)` from the LV axis
-    /// and height `z`; `None` outside them.
-    fn atrium_signal(&self, dx: f64, dy: f64, z: f64) -> Option<f32> {
-        let la = &self.atrium;
-        let u = z - self.lv.z_base;
-        if u <= 0.0 || u > la.height_mm {
-            return None;
-        }
-        let s = (1.0 - (u / la.height_mm).powi(2)).sqrt();
-        let (ax, ay) = (la.axes.0 * s, la.axes.1 * s);
-        let (x, y) = (dx - la.offset.0, dy - la.offset.1);
-        if inside_ellipse(x, y, ax, ay) {
-            return Some(signal::LV_BLOOD);
-        }
-        let w = ATRIAL_WALL_MM;
-        if inside_ellipse(x, y, ax + w, ay + w) {
-            return Some(signal::MYOCARDIUM);
-        }
-        let d = w + ATRIAL_SURROUND_MM;
-        inside_ellipse(x, y, ax + d, ay + d).then_some(signal::LUNG)
+    /// Whether height `z` lies in the part of the long axis that holds the papillary muscles.
+    fn papillary_span(&self, z: f64) -> bool {
+        let lv = &self.lv;
+        let length = lv.z_base - lv.z_apex();
+        let rel = (z - lv.z_apex()) / length;
+        (PAPILLARY_SPAN.0..=PAPILLARY_SPAN.1).contains(&rel)
     }
 
     /// Whether a wall point `(dx, dy)` from the LV centre lies in the septal sector (within
@@ -192,32 +171,18 @@ impl Scene {
         let rho = ((dx / (lv.a * s)).powi(2) + (dy / (lv.b * s)).powi(2)).sqrt();
         (rho - 1.0) * lv.a * s > septum_mm
     }
-
-    /// Two papillary muscles: discs of radius `r·s` (`r` = 0.14 of the end-diastolic
-    /// semi-axis `a`, `s` the local section scale) centred at 55 % of the local cavity radius,
-    /// anterolateral and posteromedial, in the middle part of the long axis. They lie wholly
-    /// inside the cavity and apart for any end-systolic `a` above 0.4 of the end-diastolic one.
-    fn in_papillary(&self, dx: f64, dy: f64, z: f64, s: f64) -> bool {
-        let lv = &self.lv;
-        let length = lv.z_base - lv.z_apex();
-        let rel = (z - lv.z_apex()) / length;
-        if !(PAPILLARY_SPAN.0..=PAPILLARY_SPAN.1).contains(&rel) {
-            return false;
-        }
-        let r = self.papillary_radius_mm * s;
-        [(0.6f64, 0.55f64), (-0.9f64, 0.55f64)]
-            .iter()
-            .any(|&(ang, frac)| {
-                let (px, py) = (frac * lv.a * s * ang.cos(), frac * lv.b * s * ang.sin());
-                (dx - px).powi(2) + (dy - py).powi(2) <= r * r
-            })
-    }
 }
 
 /// Papillary-muscle radius as a fraction of the end-diastolic cavity semi-axis `a`.
 pub const PAPILLARY_RADIUS: f64 = 0.14;
 /// Part of the long axis (0 apex, 1 base) where the papillary muscles are.
 const PAPILLARY_SPAN: (f64, f64) = (0.2, 0.7);
+/// Two papillary muscles: discs of radius `r·s` (`r` = [`PAPILLARY_RADIUS`] of the
+/// end-diastolic semi-axis `a`, `s` the local section scale) centred at 55 % of the local
+/// cavity radius, anterolateral and posteromedial (angle in radians, fraction of the radius),
+/// in the middle part of the long axis. They lie wholly inside the cavity and apart for any
+/// end-systolic `a` above 0.4 of the end-diastolic one.
+const PAPILLARY_SITES: [(f64, f64); 2] = [(0.6, 0.55), (-0.9, 0.55)];
 
 impl Scene {
     /// Papillary-muscle area (mm²) averaged over the slab `[z0, z1]`: inside their span, the
@@ -234,6 +199,88 @@ impl Scene {
         }
         let fraction = 2.0 * self.papillary_radius_mm.powi(2) / (lv.a * lv.b);
         fraction * ellipsoid_slab_volume(lv.a, lv.b, lv.c, lv.zc, lv.z_base, lo, hi) / (z1 - z0)
+    }
+}
+
+impl Section<'_> {
+    /// Classifies the in-plane point `(x, y)` (mm) of this section.
+    pub fn sample(&self, x: f64, y: f64) -> Sample {
+        let sc = self.scene;
+        let (cx, cy) = sc.lv_centre;
+        let (dx, dy) = (x - cx, y - cy);
+        if let Some((ca, cb)) = self.cavity {
+            if inside_ellipse(dx, dy, ca, cb) {
+                let pap = self.papillary.is_some_and(|(centres, r2)| {
+                    centres
+                        .iter()
+                        .any(|&(px, py)| (dx - px).powi(2) + (dy - py).powi(2) <= r2)
+                });
+                let signal = if pap {
+                    signal::MYOCARDIUM
+                } else {
+                    signal::LV_BLOOD
+                };
+                return Sample {
+                    signal,
+                    lv_pool: true,
+                    papillary: pap,
+                };
+            }
+        }
+        if let Some(signal) = self.atrium_signal(dx, dy) {
+            return tissue(signal);
+        }
+        let rv = self
+            .rv
+            .map(|(rx, ry)| (rx, ry, dx - sc.rv_offset.0, dy - sc.rv_offset.1));
+        if let Some((s, ea, eb)) = self.epi {
+            if inside_ellipse(dx, dy, ea, eb) {
+                if let (Some(t), Some(_)) = (sc.thin_septum_mm, rv) {
+                    if sc.beyond_thin_septum(dx, dy, s, t) {
+                        return tissue(signal::RV_BLOOD);
+                    }
+                }
+                return tissue(signal::MYOCARDIUM);
+            }
+        }
+        if let Some((rx, ry, rdx, rdy)) = rv {
+            if rx > 0.0 && inside_ellipse(rdx, rdy, rx, ry) {
+                return tissue(signal::RV_BLOOD);
+            }
+            if rx > 0.0 && inside_ellipse(rdx, rdy, rx + 3.0, ry + 3.0) {
+                return tissue(signal::MYOCARDIUM);
+            }
+        }
+        let (bx, by) = sc.body_axes;
+        if !inside_ellipse(x, y, bx, by) {
+            return tissue(signal::AIR);
+        }
+        if !inside_ellipse(x, y, bx - sc.fat_mm, by - sc.fat_mm) {
+            return tissue(signal::FAT);
+        }
+        for ((lx, ly), (ax, ay)) in sc.lungs {
+            if inside_ellipse(x - lx, y - ly, ax, ay) {
+                return tissue(signal::LUNG);
+            }
+        }
+        tissue(signal::TISSUE)
+    }
+
+    /// Signal of the atrium, its wall or its dark surroundings at `(dx, dy)` from the LV
+    /// axis; `None` outside them.
+    fn atrium_signal(&self, dx: f64, dy: f64) -> Option<f32> {
+        let (ax, ay) = self.atrium?;
+        let la = &self.scene.atrium;
+        let (x, y) = (dx - la.offset.0, dy - la.offset.1);
+        if inside_ellipse(x, y, ax, ay) {
+            return Some(signal::LV_BLOOD);
+        }
+        let w = ATRIAL_WALL_MM;
+        if inside_ellipse(x, y, ax + w, ay + w) {
+            return Some(signal::MYOCARDIUM);
+        }
+        let d = w + ATRIAL_SURROUND_MM;
+        inside_ellipse(x, y, ax + d, ay + d).then_some(signal::LUNG)
     }
 }
 
