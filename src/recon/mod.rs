@@ -134,11 +134,16 @@ impl ReconInput<'_> {
                 });
             }
         }
-        if let Some(((c, f, ky, kx), v)) = self
-            .kspace
-            .indexed_iter()
-            .find(|(_, v)| !v.re.is_finite() || !v.im.is_finite())
-        {
+        // A branch-free scan first (it vectorises); the indexed search only to name the value.
+        let finite = |v: &Complex32| v.re.is_finite() & v.im.is_finite();
+        let all_finite = match self.kspace.as_slice() {
+            Some(values) => values.iter().fold(true, |ok, v| ok & finite(v)),
+            None => self.kspace.iter().all(finite),
+        };
+        if all_finite {
+            return Ok(());
+        }
+        if let Some(((c, f, ky, kx), v)) = self.kspace.indexed_iter().find(|(_, v)| !finite(v)) {
             return Err(ReconError::NonFinite {
                 value: v.to_string(),
                 coil: c,

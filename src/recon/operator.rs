@@ -132,10 +132,13 @@ impl<'a> Encoding<'a> {
 
     /// `Eᴴy` of the measured data, readout-major (`[frame, col, row]`).
     pub fn data_adjoint_lines(&self, y: ArrayView4<Complex32>) -> Array3<Complex32> {
-        let mut ws = self.workspace();
+        // The workspace starts as a copy of the data (no zeroed buffer to overwrite).
+        let mut ws = Workspace {
+            coil: y.as_standard_layout().into_owned(),
+        };
         let (_, nf, r, c) = self.dims();
         let mut b = Array3::<Complex32>::zeros((nf, r, c));
-        self.adjoint(y, b.view_mut(), &mut ws);
+        self.adjoint_in_place(b.view_mut(), &mut ws);
         transpose_planes(b.view())
     }
 
