@@ -106,6 +106,18 @@ fn line_fft_pair(fft: &LineFft, planes: usize, lines: usize) {
     );
 }
 
+/// The ky FFT pairs of one normal-operator application, in the shape it calls them: one call
+/// per (tile, frame, coil) of TILE lines.
+fn normal_operator_ffts(ky: &LineFft) {
+    line_fft_pair(ky, COILS * FRAMES * COLS.div_ceil(TILE), TILE)
+}
+
+/// The temporal FFT pairs of one x-f shrinkage, as it calls them: one call per column tile of
+/// all its pixels' series.
+fn shrinkage_ffts(t: &LineFft) {
+    line_fft_pair(t, COLS.div_ceil(TILE), TILE * ROWS)
+}
+
 fn measure(c: &mut Criterion, medians: &Medians) {
     let slice = Slice::new();
     let input = slice.input();
@@ -151,15 +163,11 @@ fn measure(c: &mut Criterion, medians: &Medians) {
         op.normal_lines(x.view(), out.view_mut(), |_, _, _, _| ());
     });
     let ky = LineFft::new(ROWS);
-    // In the shape the operator calls them: one call per (tile, frame, coil) of TILE lines.
     timed("fft/normal-operator".into(), &mut || {
-        line_fft_pair(&ky, COILS * FRAMES * COLS.div_ceil(TILE), TILE)
+        normal_operator_ffts(&ky)
     });
     let t = LineFft::new(FRAMES);
-    // As the x-f shrinkage calls them: one call per column tile of all its pixels' series.
-    timed("fft/temporal".into(), &mut || {
-        line_fft_pair(&t, COLS.div_ceil(TILE), TILE * ROWS)
-    });
+    timed("fft/temporal".into(), &mut || shrinkage_ffts(&t));
     group.finish();
 }
 
@@ -192,10 +200,9 @@ fn paired_rounds(rounds: usize) -> Rounds {
             };
             let one = time(&mut || run(1));
             let many = time(&mut || run(ITERS));
-            let mut fft =
-                time(&mut || line_fft_pair(&ky, COILS * FRAMES * COLS.div_ceil(TILE), TILE));
+            let mut fft = time(&mut || normal_operator_ffts(&ky));
             if id != "cg-sense" {
-                fft += time(&mut || line_fft_pair(&t, COLS.div_ceil(TILE), TILE * ROWS));
+                fft += time(&mut || shrinkage_ffts(&t));
             }
             out.entry(id).or_default().push([one, many, fft]);
         }

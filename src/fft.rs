@@ -289,26 +289,6 @@ impl TemporalFft {
         });
     }
 
-    /// Transforms to x-f, applies `op` to the orthonormal spectra (each pixel's spectrum a
-    /// contiguous run of `frames` values) and transforms back, in one pass over the data.
-    ///
-    /// # Panics
-    /// If the frame axis does not match the planned length.
-    pub fn map_spectra(
-        &self,
-        data: ArrayViewMut3<Complex32>,
-        op: impl Fn(&mut [Complex32]) + Sync + Send,
-    ) {
-        let scale = 1.0 / self.lines.len() as f32;
-        self.blocks(data, |spectra, s| {
-            self.lines.process(spectra, Direction::Forward, s);
-            spectra.iter_mut().for_each(|z| *z *= scale.sqrt());
-            op(spectra);
-            self.lines.process(spectra, Direction::Inverse, s);
-            spectra.iter_mut().for_each(|z| *z *= scale.sqrt());
-        });
-    }
-
     /// Runs `op` on every `[frame, b]` block gathered as `b` contiguous time series.
     fn blocks(
         &self,

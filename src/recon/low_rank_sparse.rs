@@ -162,13 +162,14 @@ struct Tile {
     m: Vec<Complex32>,
     s: Vec<Complex32>,
     l: Vec<Complex32>,
+    /// `M − S`, the SVT's input (then scratch for `L + S` within a step).
+    t: Vec<Complex32>,
 }
 
 /// Per-thread scratch of [`Tile::step`].
 struct Scratch<'a> {
     op: TileScratch,
     shrink: SeriesShrink<'a>,
-    t: Vec<Complex32>,
     g: Vec<Complex32>,
 }
 
@@ -194,22 +195,21 @@ impl Tile {
     ) -> Part {
         let nf = w.nrows();
         let len = self.b.len() / nf;
-        // T = M − S and S_k = Λ(M − L), both from the previous iterate.
-        difference(&self.m, &self.s, &mut sc.t);
+        // S_k = Λ(M − L) and L_k = T W, both from the previous iterate (T = M − S).
         difference(&self.m, &self.l, &mut self.s);
         sc.shrink.apply(&mut self.s, lambda_s);
-        // L_k = T W.
         let l = ArrayViewMut2::from_shape((nf, len), &mut self.l[..]).expect("tile shape");
-        recombine(casorati(&sc.t, nf), w, l);
-        // M_k = X − (EᴴE X − Eᴴy) with X = L_k + S_k, frame by frame.
-        sc.t.iter_mut()
+        recombine(casorati(&self.t, nf), w, l);
+        // M_k = X − (EᴴE X − Eᴴy) with X = L_k + S_k (held in `t`), frame by frame.
+        self.t
+            .iter_mut()
             .zip(&self.l)
             .zip(&self.s)
             .for_each(|((x, l), s)| *x = *l + *s);
         sc.g.resize(self.b.len(), Complex32::default());
         for (f, ((gf, xf), bf)) in
             sc.g.chunks_exact_mut(len)
-                .zip(sc.t.chunks_exact(len))
+                .zip(self.t.chunks_exact(len))
                 .zip(self.b.chunks_exact(len))
                 .enumerate()
         {
@@ -218,10 +218,10 @@ impl Tile {
         }
         let change = sums::change(&sc.g, &self.m);
         std::mem::swap(&mut self.m, &mut sc.g);
-        difference(&self.m, &self.s, &mut sc.t);
+        difference(&self.m, &self.s, &mut self.t);
         Part {
             change,
-            gram: gram_part(casorati(&sc.t, nf)),
+            gram: gram_part(casorati(&self.t, nf)),
         }
     }
 }
@@ -267,6 +267,7 @@ impl Reconstructor for LowRankSparse {
                 Tile {
                     m: b.clone(),
                     l: b.clone(),
+                    t: b.clone(),
                     s: vec![Complex32::default(); b.len()],
                     b,
                 }
@@ -290,7 +291,6 @@ impl Reconstructor for LowRankSparse {
                     || Scratch {
                         op: TileScratch::default(),
                         shrink: SeriesShrink::new(&lines),
-                        t: Vec::new(),
                         g: Vec::new(),
                     },
                     |sc, (t, tile)| tile.step(&op, t, &w, lambda_s, sc),
