@@ -85,19 +85,40 @@ pub fn conj_mul_add(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
     conj_mul_add_body(out, a, b)
 }
 
-/// `out[i] += c·x[i]` (complex multiply-accumulate with one coefficient).
-pub fn scaled_add(out: &mut [Complex32], c: Complex32, x: &[Complex32]) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx512f") {
-        // SAFETY: the CPU supports AVX-512F (checked on the line above).
-        return unsafe { avx512::scaled_add(out, c, x) };
-    }
+/// `out[o] = Σ_i w[i·n + o]·c[i]` for `n` rows of `len` values (`c` and `out` row-major,
+/// `w` an `n × n` matrix): a block of rows recombined, as in `L = C W` for a Casorati
+/// block with frames as rows. Each output value sees the same operations, in the same row
+/// order, as `acc += w·x` on a zeroed accumulator, so the AVX and plain builds give the same bits;
+/// the AVX build keeps four output rows of eight values in registers across the whole sum
+/// instead of storing and reloading a row per term.
+///
+/// # Panics
+/// If the lengths are not `n·len`, `n·len` and `n²`.
+pub fn combine(out: &mut [Complex32], c: &[Complex32], w: &[Complex32], n: usize) {
+    assert!(
+        n > 0 && c.len().is_multiple_of(n) && out.len() == c.len() && w.len() == n * n,
+        "combine of {} rows: {} inputs, {} outputs, {} weights",
+        n,
+        c.len(),
+        out.len(),
+        w.len()
+    );
+    let len = c.len() / n;
+    let mut done = 0;
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx") {
         // SAFETY: the CPU supports AVX (checked on the line above).
-        return unsafe { avx::scaled_add(out, c, x) };
+        done = unsafe { avx::combine(out, c, w, n, len) };
     }
-    out.iter_mut().zip(x).for_each(|(o, x)| *o += c * *x);
+    for o in 0..n {
+        for p in done..len {
+            let mut acc = Complex32::default();
+            for i in 0..n {
+                acc += w[i * n + o] * c[i * len + p];
+            }
+            out[o * len + p] = acc;
+        }
+    }
 }
 
 /// `Σ conj(a[i])·b[i]` in f32, for blocks of up to a few thousand values. The AVX build
@@ -191,26 +212,58 @@ mod avx {
         }
     }
 
-    /// `out ⟵ out + c·x`, four values per step: `c·x = addsub(re(c)·x, im(c)·swap(x))`.
+    /// The values `0..done` of every row of [`super::combine`] (`done` a multiple of 8,
+    /// returned), eight values at a time: their column of the `n` input rows is copied
+    /// into a contiguous block first (rows of a tile lie a multiple of 2 KiB apart, which
+    /// maps them onto the same few cache sets), then every output row's eight values are
+    /// summed in registers, four output rows at a time. `c·x = addsub(re(c)·x,
+    /// im(c)·swap(x))`, the plain formula's operations lane by lane.
     #[target_feature(enable = "avx")]
-    pub(super) fn scaled_add(out: &mut [Complex32], c: Complex32, x: &[Complex32]) {
-        let n = out.len().min(x.len());
-        let whole = n / 4 * 4;
-        let (p, q) = (_mm256_set1_ps(c.re), _mm256_set1_ps(c.im));
-        for i in (0..whole).step_by(4) {
-            // SAFETY: i + 4 ≤ n, so every 8-float access is inside its slice.
-            unsafe {
-                let px = x.as_ptr().add(i).cast::<f32>();
-                let po = out.as_mut_ptr().add(i).cast::<f32>();
-                let vx = _mm256_loadu_ps(px);
-                let swapped = _mm256_permute_ps::<0b1011_0001>(vx);
-                let r = _mm256_addsub_ps(_mm256_mul_ps(p, vx), _mm256_mul_ps(q, swapped));
-                _mm256_storeu_ps(po, _mm256_add_ps(_mm256_loadu_ps(po), r));
+    pub(super) fn combine(
+        out: &mut [Complex32],
+        c: &[Complex32],
+        w: &[Complex32],
+        n: usize,
+        len: usize,
+    ) -> usize {
+        const ROWS: usize = 4;
+        let done = len / 8 * 8;
+        let mut block = vec![Complex32::default(); 8 * n];
+        for p in (0..done).step_by(8) {
+            for (i, b) in block.chunks_exact_mut(8).enumerate() {
+                b.copy_from_slice(&c[i * len + p..i * len + p + 8]);
+            }
+            for o0 in (0..n).step_by(ROWS) {
+                let rows = ROWS.min(n - o0);
+                let mut acc = [[_mm256_setzero_ps(); 2]; ROWS];
+                for (i, b) in block.chunks_exact(8).enumerate() {
+                    // SAFETY: `b` holds eight complex values, sixteen floats.
+                    let (x0, x1) = unsafe {
+                        let px = b.as_ptr().cast::<f32>();
+                        (_mm256_loadu_ps(px), _mm256_loadu_ps(px.add(8)))
+                    };
+                    let s0 = _mm256_permute_ps::<0b1011_0001>(x0);
+                    let s1 = _mm256_permute_ps::<0b1011_0001>(x1);
+                    for (j, a) in acc.iter_mut().enumerate() {
+                        let k = w[i * n + o0 + j.min(rows - 1)];
+                        let (re, im) = (_mm256_set1_ps(k.re), _mm256_set1_ps(k.im));
+                        let t0 = _mm256_addsub_ps(_mm256_mul_ps(re, x0), _mm256_mul_ps(im, s0));
+                        let t1 = _mm256_addsub_ps(_mm256_mul_ps(re, x1), _mm256_mul_ps(im, s1));
+                        a[0] = _mm256_add_ps(a[0], t0);
+                        a[1] = _mm256_add_ps(a[1], t1);
+                    }
+                }
+                for (j, a) in acc.iter().enumerate().take(rows) {
+                    // SAFETY: p + 8 ≤ len, so both 8-float stores are inside output row o0 + j.
+                    unsafe {
+                        let po = out.as_mut_ptr().add((o0 + j) * len + p).cast::<f32>();
+                        _mm256_storeu_ps(po, a[0]);
+                        _mm256_storeu_ps(po.add(8), a[1]);
+                    }
+                }
             }
         }
-        for i in whole..n {
-            out[i] += c * x[i];
-        }
+        done
     }
 
     /// `Σ conj(a)·b`: lanes of `re(a)·b = (pu, pv)` and `im(a)·swap(b) = (qv, qu)`, then
@@ -324,28 +377,6 @@ mod avx512 {
                 Store::Set => out[i] = v,
                 Store::Add => out[i] += v,
             }
-        }
-    }
-
-    /// `out ⟵ out + c·x`, eight values per step.
-    #[target_feature(enable = "avx512f")]
-    pub(super) fn scaled_add(out: &mut [Complex32], c: Complex32, x: &[Complex32]) {
-        let n = out.len().min(x.len());
-        let whole = n / 8 * 8;
-        let (p, q) = (_mm512_set1_ps(c.re), _mm512_set1_ps(c.im));
-        for i in (0..whole).step_by(8) {
-            // SAFETY: i + 8 ≤ n, so every 16-float access is inside its slice.
-            unsafe {
-                let px = x.as_ptr().add(i).cast::<f32>();
-                let po = out.as_mut_ptr().add(i).cast::<f32>();
-                let vx = _mm512_loadu_ps(px);
-                let swapped = _mm512_permute_ps::<0b1011_0001>(vx);
-                let r = addsub(_mm512_mul_ps(p, vx), _mm512_mul_ps(q, swapped));
-                _mm512_storeu_ps(po, _mm512_add_ps(_mm512_loadu_ps(po), r));
-            }
-        }
-        for i in whole..n {
-            out[i] += c * x[i];
         }
     }
 }
@@ -547,13 +578,27 @@ mod tests {
             .iter()
             .zip(start.iter().zip(a.iter().zip(&b)))
             .all(|(o, (s, (a, b)))| *o == *s + a.conj() * *b));
-        let c = Complex32::new(0.3, -1.7);
-        let mut acc = a.clone();
-        scaled_add(&mut acc, c, &b);
-        assert!(acc
-            .iter()
-            .zip(a.iter().zip(&b))
-            .all(|(o, (a, b))| *o == *a + c * *b));
+        // combine: every output value against the plain sum `acc += w·x` over the rows in
+        // order (exact: the same operations). 5 rows (a block of four plus one) of 37
+        // values (whole blocks of eight plus a tail).
+        let (n, len) = (5usize, 37usize);
+        let c: Vec<Complex32> = (0..n * len)
+            .map(|i| Complex32::new((i as f32 * 0.37).sin(), (i as f32 * 0.11).cos()))
+            .collect();
+        let w: Vec<Complex32> = (0..n * n)
+            .map(|i| Complex32::new((i as f32 * 0.7).sin(), 0.3 - i as f32 * 0.05))
+            .collect();
+        let mut got = vec![Complex32::new(9.0, 9.0); n * len];
+        combine(&mut got, &c, &w, n);
+        for o in 0..n {
+            for p in 0..len {
+                let mut acc = Complex32::default();
+                for i in 0..n {
+                    acc += w[i * n + o] * c[i * len + p];
+                }
+                assert_eq!(got[o * len + p], acc, "row {o} value {p}");
+            }
+        }
         // The dot product against f64: tolerance 1e-5 relative, f32 sums of 37 terms.
         let want: num_complex::Complex64 = a
             .iter()

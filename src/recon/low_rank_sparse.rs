@@ -110,17 +110,19 @@ fn threshold_weights(gram: DMatrix<Complex64>, rel: f64) -> Array2<Complex32> {
     })
 }
 
-/// `out = c W` for a Casorati block (`[frame, pixel]`, rows contiguous):
-/// `out[f'] = Σ_f W[f, f']·c[f]`.
+/// `out = c W` for a Casorati block (`[frame, pixel]`): `out[f'] = Σ_f W[f, f']·c[f]`
+/// ([`kernels::combine`]; blocks that are not contiguous are copied first).
 fn recombine(c: ArrayView2<Complex32>, w: &Array2<Complex32>, mut out: ArrayViewMut2<Complex32>) {
-    for (fo, mut row) in out.outer_iter_mut().enumerate() {
-        let row = row.as_slice_mut().expect("contiguous Casorati rows");
-        row.fill(Complex32::default());
-        for (fi, src) in c.outer_iter().enumerate() {
-            let k = w[(fi, fo)];
-            if k != Complex32::default() {
-                kernels::scaled_add(row, k, src.to_slice().expect("contiguous Casorati rows"));
-            }
+    let nf = c.nrows();
+    let w = w.as_slice().expect("standard layout");
+    let c = c.as_standard_layout();
+    let c = c.as_slice().expect("standard layout");
+    match out.as_slice_mut() {
+        Some(o) => kernels::combine(o, c, w, nf),
+        None => {
+            let mut o = vec![Complex32::default(); c.len()];
+            kernels::combine(&mut o, c, w, nf);
+            out.iter_mut().zip(o).for_each(|(d, v)| *d = v);
         }
     }
 }
