@@ -2,7 +2,7 @@
 //! side by side with straightforward Python versions (benches/reference/recon_ref.py) on
 //! `numpy.fft` and on `scipy.fft` with all cores.
 //!
-//! Run: `cargo bench --bench recon` (criterion measures; a table follows with the Python
+//! Run: `cargo bench -p cinegauge-bench --bench recon` (criterion measures; a table follows with the Python
 //! columns, which need python3 with numpy and scipy, otherwise the Rust figures alone).
 //! Per-iteration time is `(t(N) − t(1)) / (N − 1)` of criterion's medians, which removes
 //! the set-up (adjoint of the data, thresholds) from the figure. The FFT share is the time
@@ -225,10 +225,7 @@ fn best_of(rounds: &[[f64; 3]]) -> (f64, f64, f64, f64) {
 }
 
 fn python(backend: &str) -> Option<serde_json::Value> {
-    let script = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/benches/reference/recon_ref.py"
-    );
+    let script = concat!(env!("CARGO_MANIFEST_DIR"), "/reference/recon_ref.py");
     let out = Command::new("python3")
         .args([script, backend])
         .args([COILS, FRAMES, ROWS, COLS, ITERS].map(|v| v.to_string()))
@@ -260,7 +257,7 @@ fn main() {
         .all(|id| m.contains_key(&format!("{id}/{ITERS}")))
         .then_some(|k: &str| median(&mut m[k].clone()))
     else {
-        return; // a filtered run (`cargo bench -- NAME`): no table
+        return; // a filtered run (`cargo bench -p cinegauge-bench --bench recon -- NAME`): no table
     };
     let per_it =
         |id: &str| (get(&format!("{id}/{ITERS}")) - get(&format!("{id}/1"))) / (ITERS - 1) as f64;

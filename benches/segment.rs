@@ -2,7 +2,7 @@
 //! fully sampled reconstruction of a synthetic subject), on one core and on all cores, side
 //! by side with a flood-fill reference in scikit-image (benches/reference/segment_ref.py).
 //!
-//! Run: `cargo bench --bench segment` (the reference needs python3 with numpy, scipy and
+//! Run: `cargo bench -p cinegauge-bench --bench segment` (the reference needs python3 with numpy, scipy and
 //! scikit-image; without them the Rust figures alone are printed).
 
 use std::cell::RefCell;
@@ -87,10 +87,7 @@ fn main() {
         .write_npy(std::fs::File::create(&file).expect("create"))
         .expect("write");
     let s = seeds[0];
-    let script = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/benches/reference/segment_ref.py"
-    );
+    let script = concat!(env!("CARGO_MANIFEST_DIR"), "/reference/segment_ref.py");
     let py = Command::new("python3")
         .arg(script)
         .arg(&file)
