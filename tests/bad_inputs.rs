@@ -481,6 +481,15 @@ fn catalogue(root: &Path) -> Vec<Case> {
         },
     );
     add(
+        "nifti bitpix disagreeing with the datatype",
+        &["cine.nii", "bitpix = 0"],
+        &|d| {
+            // bitpix at byte 72 (nifti1.h); the reader library sizes the data from it.
+            let p = nifti(d, |b| set_i16(b, 72, 0));
+            measure(d, &p)
+        },
+    );
+    add(
         "nifti zero voxel size",
         &["zero_pixdim.nii", "pixdim"],
         &|d| measure(d, &fixture("nifti/zero_pixdim.nii")),

@@ -223,6 +223,14 @@ fn check_claims(path: &Path, h: &NiftiHeader) -> Result<(), String> {
     let datatype = h
         .data_type()
         .map_err(|_| format!("datatype = {}: not a NIfTI-1 datatype code", h.datatype))?;
+    // The nifti crate sizes the voxel data from bitpix, not from the datatype.
+    let bits = 8 * datatype.size_of();
+    if usize::try_from(h.bitpix).ok() != Some(bits) {
+        return Err(format!(
+            "bitpix = {}: datatype {} ({datatype:?}) has {bits} bits per value",
+            h.bitpix, h.datatype
+        ));
+    }
     if !(h.vox_offset.is_finite() && h.vox_offset >= 0.0) {
         return Err(format!("vox_offset = {}: not a byte offset", h.vox_offset));
     }
