@@ -2,8 +2,9 @@
 //! side by side with straightforward Python versions (benches/reference/recon_ref.py) on
 //! `numpy.fft` and on `scipy.fft` with all cores.
 //!
-//! Run: `cargo bench -p cinegauge-bench --bench recon` (criterion measures; a table follows with the Python
-//! columns, which need python3 with numpy and scipy, otherwise the Rust figures alone).
+//! Run: `cargo bench -p cinegauge-bench --bench recon` (criterion measures; a table follows
+//! with the Python columns, which need python3 with numpy and scipy, otherwise the Rust
+//! figures alone).
 //! Per-iteration time is `(t(N) − t(1)) / (N − 1)` of criterion's medians, which removes
 //! the set-up (adjoint of the data, thresholds) from the figure. The FFT share is the time
 //! of exactly the FFT calls one iteration makes (1-D ky transforms of the normal operator,
@@ -257,7 +258,8 @@ fn main() {
         .all(|id| m.contains_key(&format!("{id}/{ITERS}")))
         .then_some(|k: &str| median(&mut m[k].clone()))
     else {
-        return; // a filtered run (`cargo bench -p cinegauge-bench --bench recon -- NAME`): no table
+        // A filtered run (`cargo bench -p cinegauge-bench --bench recon -- NAME`): no table.
+        return;
     };
     let per_it =
         |id: &str| (get(&format!("{id}/{ITERS}")) - get(&format!("{id}/1"))) / (ITERS - 1) as f64;

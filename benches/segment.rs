@@ -2,8 +2,8 @@
 //! fully sampled reconstruction of a synthetic subject), on one core and on all cores, side
 //! by side with a flood-fill reference in scikit-image (benches/reference/segment_ref.py).
 //!
-//! Run: `cargo bench -p cinegauge-bench --bench segment` (the reference needs python3 with numpy, scipy and
-//! scikit-image; without them the Rust figures alone are printed).
+//! Run: `cargo bench -p cinegauge-bench --bench segment` (the reference needs python3 with
+//! numpy, scipy and scikit-image; without them the Rust figures alone are printed).
 
 use std::cell::RefCell;
 use std::process::Command;

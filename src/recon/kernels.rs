@@ -92,9 +92,17 @@ pub fn conj_mul_add(out: &mut [Complex32], a: &[Complex32], b: &[Complex32]) {
 /// the AVX build keeps four output rows of eight values in registers across the whole sum
 /// instead of storing and reloading a row per term.
 ///
+/// `block` is scratch (resized as needed), so a caller in a loop allocates once.
+///
 /// # Panics
 /// If the lengths are not `n·len`, `n·len` and `n²`.
-pub fn combine(out: &mut [Complex32], c: &[Complex32], w: &[Complex32], n: usize) {
+pub fn combine(
+    out: &mut [Complex32],
+    c: &[Complex32],
+    w: &[Complex32],
+    n: usize,
+    block: &mut Vec<Complex32>,
+) {
     assert!(
         n > 0 && c.len().is_multiple_of(n) && out.len() == c.len() && w.len() == n * n,
         "combine of {} rows: {} inputs, {} outputs, {} weights",
@@ -108,7 +116,7 @@ pub fn combine(out: &mut [Complex32], c: &[Complex32], w: &[Complex32], n: usize
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx") {
         // SAFETY: the CPU supports AVX (checked on the line above).
-        done = unsafe { avx::combine(out, c, w, n, len) };
+        done = unsafe { avx::combine(out, c, w, n, len, block) };
     }
     for o in 0..n {
         for p in done..len {
@@ -225,10 +233,11 @@ mod avx {
         w: &[Complex32],
         n: usize,
         len: usize,
+        block: &mut Vec<Complex32>,
     ) -> usize {
         const ROWS: usize = 4;
         let done = len / 8 * 8;
-        let mut block = vec![Complex32::default(); 8 * n];
+        block.resize(8 * n, Complex32::default());
         for p in (0..done).step_by(8) {
             for (i, b) in block.chunks_exact_mut(8).enumerate() {
                 b.copy_from_slice(&c[i * len + p..i * len + p + 8]);
@@ -244,6 +253,8 @@ mod avx {
                     };
                     let s0 = _mm256_permute_ps::<0b1011_0001>(x0);
                     let s1 = _mm256_permute_ps::<0b1011_0001>(x1);
+                    // A last group of fewer than four rows repeats its last row in the
+                    // spare registers (not stored), so the loop has a fixed length.
                     for (j, a) in acc.iter_mut().enumerate() {
                         let k = w[i * n + o0 + j.min(rows - 1)];
                         let (re, im) = (_mm256_set1_ps(k.re), _mm256_set1_ps(k.im));
@@ -589,7 +600,7 @@ mod tests {
             .map(|i| Complex32::new((i as f32 * 0.7).sin(), 0.3 - i as f32 * 0.05))
             .collect();
         let mut got = vec![Complex32::new(9.0, 9.0); n * len];
-        combine(&mut got, &c, &w, n);
+        combine(&mut got, &c, &w, n, &mut Vec::new());
         for o in 0..n {
             for p in 0..len {
                 let mut acc = Complex32::default();

@@ -111,17 +111,23 @@ fn threshold_weights(gram: DMatrix<Complex64>, rel: f64) -> Array2<Complex32> {
 }
 
 /// `out = c W` for a Casorati block (`[frame, pixel]`): `out[f'] = Σ_f W[f, f']·c[f]`
-/// ([`kernels::combine`]; blocks that are not contiguous are copied first).
-fn recombine(c: ArrayView2<Complex32>, w: &Array2<Complex32>, mut out: ArrayViewMut2<Complex32>) {
+/// ([`kernels::combine`], with `block` its scratch; blocks that are not contiguous are copied
+/// first).
+fn recombine(
+    c: ArrayView2<Complex32>,
+    w: &Array2<Complex32>,
+    mut out: ArrayViewMut2<Complex32>,
+    block: &mut Vec<Complex32>,
+) {
     let nf = c.nrows();
     let w = w.as_slice().expect("standard layout");
     let c = c.as_standard_layout();
     let c = c.as_slice().expect("standard layout");
     match out.as_slice_mut() {
-        Some(o) => kernels::combine(o, c, w, nf),
+        Some(o) => kernels::combine(o, c, w, nf, block),
         None => {
             let mut o = vec![Complex32::default(); c.len()];
-            kernels::combine(&mut o, c, w, nf);
+            kernels::combine(&mut o, c, w, nf, block);
             out.iter_mut().zip(o).for_each(|(d, v)| *d = v);
         }
     }
@@ -153,7 +159,7 @@ pub fn svt(x: &Array3<Complex32>, rel: f64, out: &mut Array3<Complex32>) {
     o.axis_chunks_iter_mut(Axis(1), PIXELS)
         .into_par_iter()
         .zip(m.axis_chunks_iter(Axis(1), PIXELS))
-        .for_each(|(ob, mb)| recombine(mb, &w, ob));
+        .for_each_init(Vec::new, |block, (ob, mb)| recombine(mb, &w, ob, block));
 }
 
 /// One column tile of the iteration (all frames, frame-major `[frame][value]`, the values
@@ -173,6 +179,8 @@ struct Scratch<'a> {
     op: TileScratch,
     shrink: SeriesShrink<'a>,
     g: Vec<Complex32>,
+    /// Scratch of [`kernels::combine`].
+    block: Vec<Complex32>,
 }
 
 /// What one tile contributes to the image-wide quantities of an iteration.
@@ -201,7 +209,7 @@ impl Tile {
         difference(&self.m, &self.l, &mut self.s);
         sc.shrink.apply(&mut self.s, lambda_s);
         let l = ArrayViewMut2::from_shape((nf, len), &mut self.l[..]).expect("tile shape");
-        recombine(casorati(&self.t, nf), w, l);
+        recombine(casorati(&self.t, nf), w, l, &mut sc.block);
         // M_k = X − (EᴴE X − Eᴴy) with X = L_k + S_k (held in `t`), frame by frame.
         self.t
             .iter_mut()
@@ -294,6 +302,7 @@ impl Reconstructor for LowRankSparse {
                         op: TileScratch::default(),
                         shrink: SeriesShrink::new(&lines),
                         g: Vec::new(),
+                        block: Vec::new(),
                     },
                     |sc, (t, tile)| tile.step(&op, t, &w, lambda_s, sc),
                 )
