@@ -185,27 +185,38 @@ mod avx {
         let n = out.len().min(a.len()).min(b.len());
         let whole = n / 4 * 4;
         let flip = _mm256_set1_ps(-0.0);
-        for i in (0..whole).step_by(4) {
-            // SAFETY: i + 4 ≤ n, so every 8-float access is inside its slice; unaligned
-            // loads and stores are used.
-            unsafe {
-                let pa = a.as_ptr().add(i).cast::<f32>();
-                let pb = b.as_ptr().add(i).cast::<f32>();
-                let po = out.as_mut_ptr().add(i).cast::<f32>();
-                let va = _mm256_loadu_ps(pa);
-                let vb = _mm256_loadu_ps(pb);
-                let p = _mm256_moveldup_ps(va);
-                let mut q = _mm256_movehdup_ps(va);
-                if conj {
-                    q = _mm256_xor_ps(q, flip);
+        // One loop per case, as in the AVX-512 build, so the branches stay out of the loop
+        // body.
+        macro_rules! body {
+            ($conj:expr, $add:expr) => {
+                for i in (0..whole).step_by(4) {
+                    // SAFETY: i + 4 ≤ n, so every 8-float access is inside its slice;
+                    // unaligned loads and stores are used.
+                    unsafe {
+                        let po = out.as_mut_ptr().add(i).cast::<f32>();
+                        let va = _mm256_loadu_ps(a.as_ptr().add(i).cast::<f32>());
+                        let vb = _mm256_loadu_ps(b.as_ptr().add(i).cast::<f32>());
+                        let p = _mm256_moveldup_ps(va);
+                        let mut q = _mm256_movehdup_ps(va);
+                        if $conj {
+                            q = _mm256_xor_ps(q, flip);
+                        }
+                        let swapped = _mm256_permute_ps::<0b1011_0001>(vb);
+                        let mut r =
+                            _mm256_addsub_ps(_mm256_mul_ps(p, vb), _mm256_mul_ps(q, swapped));
+                        if $add {
+                            r = _mm256_add_ps(_mm256_loadu_ps(po), r);
+                        }
+                        _mm256_storeu_ps(po, r);
+                    }
                 }
-                let swapped = _mm256_permute_ps::<0b1011_0001>(vb);
-                let mut r = _mm256_addsub_ps(_mm256_mul_ps(p, vb), _mm256_mul_ps(q, swapped));
-                if let Store::Add = store {
-                    r = _mm256_add_ps(_mm256_loadu_ps(po), r);
-                }
-                _mm256_storeu_ps(po, r);
-            }
+            };
+        }
+        match (conj, store) {
+            (false, Store::Set) => body!(false, false),
+            (false, Store::Add) => body!(false, true),
+            (true, Store::Set) => body!(true, false),
+            (true, Store::Add) => body!(true, true),
         }
         for i in whole..n {
             let v = if conj {
