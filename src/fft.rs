@@ -253,6 +253,36 @@ impl LineFft {
         }
         fft.process_with_scratch(lines, &mut scratch[..need]);
     }
+
+    /// Like [`process`](Self::process) but centred: each line is rotated by `⌊n/2⌋`
+    /// before and by `⌈n/2⌉` after (ifftshift, FFT, fftshift), the line transforms of
+    /// [`CenteredFft2`] (unscaled), with the same bits.
+    ///
+    /// # Panics
+    /// If the buffer length is not a multiple of the line length.
+    pub fn process_centred(
+        &self,
+        lines: &mut [Complex32],
+        dir: Direction,
+        scratch: &mut Vec<Complex32>,
+    ) {
+        assert_eq!(
+            lines.len() % self.n,
+            0,
+            "buffer of {} values is not a whole number of {}-point lines",
+            lines.len(),
+            self.n
+        );
+        let fft = match dir {
+            Direction::Forward => &self.fwd,
+            Direction::Inverse => &self.inv,
+        };
+        let need = fft.get_inplace_scratch_len();
+        if scratch.len() < need {
+            scratch.resize(need, Complex32::default());
+        }
+        shifted_lines(lines, self.n, fft.as_ref(), &mut scratch[..need]);
+    }
 }
 
 /// Orthonormal 1-D FFT along the frame axis of `[frame, a, b]` arrays: the temporal

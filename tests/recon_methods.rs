@@ -62,7 +62,7 @@ fn encoding_operator_passes_the_dot_product_test() {
         let y = Array4::from_shape_fn((nc, nf, rows, cols), |_| crand(&mut r));
         let ex = op.forward(x.view(), &mut ws);
         let mut ehy = Array3::<Complex32>::zeros((nf, rows, cols));
-        op.adjoint(y.view(), ehy.view_mut(), &mut ws);
+        op.adjoint(y.view(), ehy.view_mut());
         let lhs = dot(ex.iter().copied(), y.iter().copied());
         let rhs = dot(x.iter().copied(), ehy.iter().copied());
         let scale = ex
@@ -100,7 +100,7 @@ fn readout_separable_normal_operator_equals_adjoint_of_forward() {
         let x = Array3::from_shape_fn((nf, rows, cols), |_| crand(&mut r));
         let ex = op.forward(x.view(), &mut ws);
         let mut full = Array3::<Complex32>::zeros((nf, rows, cols));
-        op.adjoint(ex.view(), full.view_mut(), &mut ws);
+        op.adjoint(ex.view(), full.view_mut());
         let xl = transpose_planes(x.view());
         let mut out = Array3::<Complex32>::zeros(xl.dim());
         op.normal_lines(xl.view(), out.view_mut(), |_, _, _, _| ());

@@ -18,14 +18,14 @@
 //! contiguous.
 
 use ndarray::{
-    Array2, Array3, Array4, ArrayView3, ArrayView4, ArrayViewMut2, ArrayViewMut3, Axis, CowArray,
-    Ix3, Zip,
+    s, Array2, Array3, Array4, ArrayView3, ArrayView4, ArrayViewMut2, ArrayViewMut3, Axis,
+    CowArray, Ix3, Zip,
 };
 use num_complex::Complex32;
 use rayon::prelude::*;
 
 use super::{kernels, ReconError};
-use crate::fft::{CenteredFft2, Direction, FftScratch, LineFft};
+use crate::fft::{transpose, CenteredFft2, Direction, FftScratch, LineFft};
 
 /// Ky lines per tile of [`Encoding::normal_lines`]: small enough that a tile of every
 /// coil's sensitivities stays in a core's cache (8 coils × 8 lines × 256 rows = 128 KiB).
@@ -64,6 +64,8 @@ pub struct Encoding<'a> {
     keep: Array2<f32>,
     /// 1-D FFTs along ky.
     ky: LineFft,
+    /// 1-D FFTs along kx (the data adjoint's transforms of acquired lines).
+    kx: LineFft,
 }
 
 impl<'a> Encoding<'a> {
@@ -115,6 +117,7 @@ impl<'a> Encoding<'a> {
             sens_t,
             keep,
             ky: LineFft::new(r),
+            kx: LineFft::new(c),
         })
     }
 
@@ -131,15 +134,51 @@ impl<'a> Encoding<'a> {
     }
 
     /// `Eᴴy` of the measured data, readout-major (`[frame, col, row]`).
+    ///
+    /// Works frame by frame in cache: per coil, only the acquired ky lines get their kx
+    /// transform (the others are zero and stay zero), they land as columns of a
+    /// readout-major plane, and the ky transforms run along its contiguous lines. Every
+    /// value sees the same operations as the full centred 2-D inverse FFT of the masked
+    /// data followed by the coil sum (same bits), without the transforms of empty lines or
+    /// a copy of the whole k-space.
     pub fn data_adjoint_lines(&self, y: ArrayView4<Complex32>) -> Array3<Complex32> {
-        // The workspace starts as a copy of the data (no zeroed buffer to overwrite).
-        let mut ws = Workspace {
-            coil: y.as_standard_layout().into_owned(),
-        };
-        let (_, nf, r, c) = self.dims();
-        let mut b = Array3::<Complex32>::zeros((nf, r, c));
-        self.adjoint_in_place(b.view_mut(), &mut ws);
-        transpose_planes(b.view())
+        let (nc, nf, r, c) = self.dims();
+        assert_eq!(
+            y.dim(),
+            (nc, nf, r, c),
+            "k-space {:?} does not match the operator",
+            y.dim()
+        );
+        let scale = 1.0 / ((r * c) as f32).sqrt();
+        let sens = self.sens_t.as_slice().expect("standard layout");
+        let mut b = Array3::<Complex32>::zeros((nf, c, r));
+        b.axis_iter_mut(Axis(0))
+            .into_par_iter()
+            .enumerate()
+            .for_each_init(
+                || (Vec::new(), Vec::new(), Vec::new()),
+                |(rows, plane, scratch), (f, mut bf)| {
+                    let acc = bf.as_slice_mut().expect("standard layout");
+                    rows.resize(r * c, Complex32::default());
+                    plane.resize(r * c, Complex32::default());
+                    for (ci, sc) in sens.chunks_exact(r * c).enumerate() {
+                        rows.fill(Complex32::default());
+                        for (k, row) in rows.chunks_exact_mut(c).enumerate() {
+                            if self.mask[(f, k)] {
+                                row.iter_mut()
+                                    .zip(y.slice(s![ci, f, k, ..]))
+                                    .for_each(|(o, v)| *o = *v);
+                                self.kx.process_centred(row, Direction::Inverse, scratch);
+                            }
+                        }
+                        transpose(rows, plane, r, c, 1.0);
+                        self.ky.process_centred(plane, Direction::Inverse, scratch);
+                        plane.iter_mut().for_each(|z| *z *= scale);
+                        kernels::conj_mul_add(acc, sc, plane);
+                    }
+                },
+            );
+        b
     }
 
     /// `y = E x` into the workspace buffer, returned as a view.
@@ -165,15 +204,10 @@ impl<'a> Encoding<'a> {
         self.forward_into(x, ws).to_owned()
     }
 
-    /// `x = Eᴴ y`.
-    pub fn adjoint(
-        &self,
-        y: ArrayView4<Complex32>,
-        x: ArrayViewMut3<Complex32>,
-        ws: &mut Workspace,
-    ) {
-        ws.coil.assign(&y);
-        self.adjoint_in_place(x, ws);
+    /// `x = Eᴴ y` (`x` as `[frame, row, col]`); lines `y` did not acquire are ignored.
+    pub fn adjoint(&self, y: ArrayView4<Complex32>, mut x: ArrayViewMut3<Complex32>) {
+        let lines = self.data_adjoint_lines(y);
+        x.assign(&lines.view().permuted_axes([0, 2, 1]));
     }
 
     /// Number of column tiles of [`TILE`] ky lines (the last one may be narrower).
@@ -309,40 +343,6 @@ impl<'a> Encoding<'a> {
                 line.fill(Complex32::default());
             }
         }
-    }
-
-    /// Applies `Eᴴ` to the k-space held in the workspace (zeroing unacquired lines first).
-    fn adjoint_in_place(&self, mut x: ArrayViewMut3<Complex32>, ws: &mut Workspace) {
-        let (nc, nf, r, c) = self.dims();
-        self.each_plane(ws, |_, f, mut plane, scratch| {
-            self.zero_unacquired(&mut plane, f);
-            self.fft
-                .process(plane.view_mut(), Direction::Inverse, scratch);
-        });
-        let coil = &ws.coil;
-        let plane = r * c;
-        let sens = self
-            .sens
-            .as_slice()
-            .expect("standard layout by construction");
-        let coil = coil.as_slice().expect("workspace is standard layout");
-        x.axis_iter_mut(Axis(0))
-            .into_par_iter()
-            .enumerate()
-            .for_each(|(f, mut xf)| {
-                // One pass over the pixels, summing the coils in the inner loop.
-                let sum = |p: usize| {
-                    let mut acc = Complex32::default();
-                    for ci in 0..nc {
-                        acc += sens[ci * plane + p].conj() * coil[(ci * nf + f) * plane + p];
-                    }
-                    acc
-                };
-                match xf.as_slice_mut() {
-                    Some(out) => out.iter_mut().enumerate().for_each(|(p, o)| *o = sum(p)),
-                    None => xf.iter_mut().enumerate().for_each(|(p, o)| *o = sum(p)),
-                }
-            });
     }
 }
 
